@@ -1,0 +1,1 @@
+"""Sampling engine: points, batches, stopping, executors."""

@@ -1,0 +1,46 @@
+"""The exception tree of codebench.
+
+::
+
+    CodebenchError            root: anything codebench raises on purpose
+    ├── ConfigError           a sweep file or command-line value is not allowed
+    ├── DeviceFileError       a device calibration file is not allowed
+    ├── DecoderError          a decoder cannot be built or run for a point
+    └── StoreError            a results store is unusable (foreign, corrupt, locked)
+
+The command line maps every ``CodebenchError`` to exit status 2 and prints
+its message on one line, without a traceback.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+
+class CodebenchError(Exception):
+    """Root of every error codebench raises on purpose."""
+
+
+class ConfigError(CodebenchError):
+    """A sweep-file or command-line value is not allowed."""
+
+
+class DeviceFileError(CodebenchError):
+    """A device calibration file is not allowed."""
+
+
+class DecoderError(CodebenchError):
+    """A decoder cannot be built or run."""
+
+
+class StoreError(CodebenchError):
+    """A results store cannot be used."""
+
+
+def not_allowed(path: str, value: Any, allowed: str) -> str:
+    """Format the one message template used for every rejected value.
+
+    >>> not_allowed("study[1].p[0]", 1.5, "a number in [0, 0.1]")
+    'study[1].p[0] must be a number in [0, 0.1]; got 1.5.'
+    """
+    return f"{path} must be {allowed}; got {value!r}."
