@@ -44,3 +44,7 @@ def not_allowed(path: str, value: Any, allowed: str) -> str:
     'study[1].p[0] must be a number in [0, 0.1]; got 1.5.'
     """
     return f"{path} must be {allowed}; got {value!r}."
+
+
+class Interrupted(Exception):
+    """A run was stopped by SIGINT or SIGTERM; its finished batches are stored."""

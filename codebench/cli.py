@@ -1,0 +1,121 @@
+"""The ``codebench`` command line: one function per verb.
+
+Exit status: 0 success, 2 bad input (one line on standard error, no
+traceback), 1 anything else, 130 interrupted (finished batches are kept).
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+from typing import Callable, NoReturn, Sequence
+
+from codebench.errors import CodebenchError, Interrupted, not_allowed
+
+EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+
+
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose errors are one line and exit status 2."""
+
+    def error(self, message: str) -> NoReturn:
+        self.exit(EXIT_BAD_INPUT, f"codebench: {message} (see `{self.prog} --help`)\n")
+
+
+def _positive_int(name: str) -> Callable[[str], int]:
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            value = -1
+        if value < 1:
+            raise argparse.ArgumentTypeError(not_allowed(name, text, "a positive integer"))
+        return value
+
+    return parse
+
+
+def cmd_sweep(args: argparse.Namespace) -> int:
+    from codebench.api import run_sweep
+    from codebench.config import load_sweep
+    from codebench.tables import summary_table
+
+    sweep = load_sweep(args.config)
+    out = Path(args.out) if args.out else sweep.output_dir_default
+    frame = run_sweep(sweep, out=out, workers=args.workers, progress=not args.quiet)
+    print(summary_table(frame))
+    print(f"\nwrote {out / 'results.csv'} and {out / 'results.sqlite'}")
+    return EXIT_OK
+
+
+def cmd_export(args: argparse.Namespace) -> int:
+    from codebench.api import export_csv
+
+    path = export_csv(args.dir, args.csv)
+    print(f"wrote {path}")
+    return EXIT_OK
+
+
+def cmd_circuit(args: argparse.Namespace) -> int:
+    from codebench.pointspec import point_from_args, point_list
+
+    if args.list and args.config is not None:
+        print(point_list(args.config))
+        return EXIT_OK
+    point = point_from_args(args)
+    sys.stdout.write(str(point.circuit()) + "\n")
+    return EXIT_OK
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="codebench", description="Logical-qubit memory experiments: sample, decode, fit.")
+    sub = parser.add_subparsers(dest="verb", required=True, parser_class=_Parser)
+
+    sweep = sub.add_parser("sweep", help="run or resume a sweep file")
+    sweep.add_argument("config", help="sweep file (TOML)")
+    sweep.add_argument("--out", help="output folder (default: results/<name>)")
+    sweep.add_argument("--workers", type=_positive_int("--workers"), help="local worker processes (default: all cores)")
+    sweep.add_argument("--quiet", action="store_true", help="no progress line")
+    sweep.set_defaults(func=cmd_sweep)
+
+    export = sub.add_parser("export", help="rewrite results.csv from the store")
+    export.add_argument("dir", help="sweep output folder")
+    export.add_argument("--csv", help="where to write (default: DIR/results.csv)")
+    export.set_defaults(func=cmd_export)
+
+    circuit = sub.add_parser("circuit", help="print one point's noisy stim circuit")
+    circuit.add_argument("config", nargs="?", help="sweep file; pick the point with --point")
+    circuit.add_argument("--point", type=int, help="index of the point in the sweep's grid, from 0")
+    circuit.add_argument("--list", action="store_true", help="list the sweep's points with their indices")
+    circuit.add_argument("--code", help="code family (without a sweep file)")
+    circuit.add_argument("--distance", type=int)
+    circuit.add_argument("--rounds", help="rounds: an integer or a multiple of d such as 'd'")
+    circuit.add_argument("--basis", default="Z")
+    circuit.add_argument("--noise")
+    circuit.add_argument("--p", type=float)
+    circuit.set_defaults(func=cmd_circuit)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; returns the exit status."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:
+        return int(exc.code or 0)
+    try:
+        status: int = args.func(args)
+        return status
+    except CodebenchError as exc:
+        print(f"codebench: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except (KeyboardInterrupt, Interrupted):
+        print("\ncodebench: interrupted; finished batches are stored, rerun to resume.", file=sys.stderr)
+        return EXIT_INTERRUPTED
+
+
+def entry() -> NoReturn:
+    sys.exit(main())
+

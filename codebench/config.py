@@ -1,0 +1,510 @@
+"""Sweep files: read, validate and expand them into points.
+
+A sweep file is TOML (see ``/work/shared/design.md``, "Sweep file")::
+
+    name = "demo"
+    seed = 1234
+
+    [stopping]
+    failure_target = 200
+    shot_budget = 1_000_000
+
+    [[study]]
+    code = "rotated_surface"
+    distances = [3, 5]
+    rounds = "d"
+    noise = "si1000"
+    p = { geomspace = [0.001, 0.004, 3] }
+    decoders = ["mwpm"]
+
+Every rejected value raises :class:`~codebench.errors.ConfigError` with a
+one-line message: the source, the key path (``study[1].distances[2]``), then
+the shared template of :func:`~codebench.errors.not_allowed`. Only the first
+problem found is reported.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from collections.abc import Iterable
+from typing import Any, TypeGuard
+
+import numpy as np
+
+from codebench.codes import CODE_FAMILIES
+from codebench.codes.base import CodeFamily
+from codebench.codes.layout import Basis
+from codebench.decoders import DECODERS
+from codebench.engine.points import Point
+from codebench.engine.stopping import DEFAULT_BATCH_BYTES, Stopping
+from codebench.errors import ConfigError, not_allowed
+from codebench.noise import NOISE_MODELS
+from codebench.noise.base import NoiseModel
+
+__all__ = ["Sweep", "load_sweep", "parse_rounds", "parse_sweep"]
+
+#: Pattern a sweep name must match in full (it names an output folder).
+NAME_PATTERN = re.compile(r"[A-Za-z0-9][A-Za-z0-9_.-]*")
+#: A multiple of the distance: "d", "2d", "3d", ...
+_ROUNDS_PATTERN = re.compile(r"([1-9][0-9]*)?d")
+#: Significant digits kept for geomspace-expanded rates, so point keys are stable.
+P_DIGITS = 12
+#: Smallest ``engine.batch_bytes``.
+MIN_BATCH_BYTES = 1024
+_SEED_LIMIT = 2**63
+
+_TOP_KEYS = ("name", "seed", "stopping", "engine", "study")
+_STOPPING_KEYS = ("failure_target", "shot_budget", "relative_precision")
+_ENGINE_KEYS = ("batch_bytes",)
+_STUDY_KEYS = (
+    "code",
+    "distances",
+    "rounds",
+    "basis",
+    "noise",
+    "p",
+    "decoders",
+    "label",
+    "noise_options",
+)
+_ROUNDS_ALLOWED = (
+    "a positive integer, a non-empty list of positive integers, "
+    "or a multiple of d such as 'd' or '2d'"
+)
+_P_ALLOWED = "a non-empty list of numbers or a table { geomspace = [low, high, count] }"
+_GEOMSPACE_ALLOWED = "a list [low, high, count] with 0 < low <= high and an integer count >= 1"
+_NAME_ALLOWED = "a string matching [A-Za-z0-9][A-Za-z0-9_.-]* (it names the output folder)"
+_SEED_ALLOWED = "an integer in [0, 2**63 - 1]"
+
+
+class _Problem(ConfigError):
+    """A rejected value, before the source is put in front of the message."""
+
+
+@dataclass(frozen=True)
+class Sweep:
+    """A validated sweep: its settings and its expanded grid of points.
+
+    Parameters
+    ----------
+    name : str
+        Names the output folder.
+    seed : int
+        Every random stream of the sweep derives from it.
+    stopping : Stopping
+        Per-point stopping rule.
+    points : list of Point
+        The grid in order: study by study, then distance, rounds, basis, p,
+        decoder. A point already produced by an earlier study is not repeated
+        (the ``study`` label is not part of point equality).
+    source_text : str
+        Text of the sweep file, or ``''`` when built from a dict.
+    source : str
+        Path of the sweep file, or ``"<dict>"``.
+    batch_bytes : int
+        Upper bound on the bytes of detection events one batch may hold.
+    """
+
+    name: str
+    seed: int
+    stopping: Stopping
+    points: list[Point]
+    source_text: str
+    source: str
+    batch_bytes: int = DEFAULT_BATCH_BYTES
+
+    @property
+    def output_dir_default(self) -> Path:
+        """Where results go when no output folder is given: ``results/<name>``."""
+        return Path("results") / self.name
+
+
+def load_sweep(path: str | os.PathLike[str]) -> Sweep:
+    """Read, validate and expand the sweep file at ``path``.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        A TOML sweep file.
+
+    Returns
+    -------
+    Sweep
+        With ``source`` set to ``str(path)`` and ``source_text`` to the text.
+
+    Raises
+    ------
+    ConfigError
+        If the file is missing, unreadable, not TOML, or holds a value that
+        is not allowed.
+    """
+    source = str(path)
+    file = Path(path)
+    if not file.exists():
+        raise ConfigError(f"sweep file {source!r} does not exist.")
+    if file.is_dir():
+        raise ConfigError(f"sweep file {source!r} is a directory, not a file.")
+    try:
+        with open(file, "rb") as handle:
+            raw = handle.read()
+    except OSError as exc:
+        raise ConfigError(f"sweep file {source!r} cannot be read: {_one_line(str(exc))}") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise ConfigError(f"{source}: not valid TOML: not UTF-8 text ({_one_line(str(exc))})") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"{source}: not valid TOML: {_one_line(str(exc))}") from None
+    return parse_sweep(data, source=source, text=text)
+
+
+def parse_sweep(data: dict[str, Any], source: str = "<dict>", text: str = "") -> Sweep:
+    """Validate an already-parsed sweep table and expand it into points.
+
+    Parameters
+    ----------
+    data : dict
+        The sweep, as ``tomllib`` would return it.
+    source : str
+        Put in front of every error message and stored in ``Sweep.source``.
+    text : str
+        The file's text, stored in ``Sweep.source_text``.
+
+    Returns
+    -------
+    Sweep
+
+    Raises
+    ------
+    ConfigError
+        For the first value found that is not allowed.
+
+    Examples
+    --------
+    >>> sweep = parse_sweep({
+    ...     "name": "tiny", "seed": 7,
+    ...     "study": [{"code": "repetition", "distances": [3, 5], "rounds": "2d",
+    ...                "noise": "circuit_depolarizing", "p": [0.01], "decoders": ["mwpm"]}],
+    ... })
+    >>> [(pt.distance, pt.rounds) for pt in sweep.points]
+    [(3, 6), (5, 10)]
+    >>> sweep.stopping.shot_budget
+    1000000
+    """
+    try:
+        return _parse(data, source, text)
+    except _Problem as problem:
+        raise ConfigError(f"{source}: {problem}") from None
+
+
+def parse_rounds(spec: object, distance: int, path: str) -> list[int]:
+    """Resolve a ``rounds`` value for one distance.
+
+    Parameters
+    ----------
+    spec : object
+        A positive integer, a non-empty list of them, or a multiple of the
+        distance written ``"d"``, ``"2d"``, ``"3d"``, ...
+    distance : int
+        The code distance ``"kd"`` is multiplied out with.
+    path : str
+        Key path used in the error message, such as ``study[0].rounds``.
+
+    Returns
+    -------
+    list of int
+        The rounds, in the order given.
+
+    Raises
+    ------
+    ConfigError
+        If ``spec`` is not one of the allowed forms (the message has no
+        source in front; :func:`parse_sweep` adds it).
+
+    Examples
+    --------
+    >>> parse_rounds("3d", 5, "rounds")
+    [15]
+    >>> parse_rounds([1, 4], 5, "rounds")
+    [1, 4]
+    """
+    if isinstance(spec, str):
+        match = _ROUNDS_PATTERN.fullmatch(spec)
+        if match is None:
+            raise _Problem(not_allowed(path, spec, _ROUNDS_ALLOWED))
+        factor = int(match.group(1)) if match.group(1) else 1
+        return [factor * distance]
+    if _is_int(spec):
+        return [_positive_int(spec, path, "a positive integer")]
+    if isinstance(spec, list) and spec:
+        return [_positive_int(r, f"{path}[{i}]", "a positive integer") for i, r in enumerate(spec)]
+    raise _Problem(not_allowed(path, spec, _ROUNDS_ALLOWED))
+
+
+# ---------------------------------------------------------------------------
+# internals: every helper raises _Problem with a message that has no source.
+
+
+def _parse(data: object, source: str, text: str) -> Sweep:
+    if not isinstance(data, dict):
+        raise _Problem(not_allowed("the sweep", data, "a table"))
+    _check_keys(data, "", _TOP_KEYS)
+    name = _require(data, "name", "a string naming the output folder")
+    if not isinstance(name, str) or NAME_PATTERN.fullmatch(name) is None:
+        raise _Problem(not_allowed("name", name, _NAME_ALLOWED))
+    seed = _require(data, "seed", _SEED_ALLOWED)
+    if not _is_int(seed) or not 0 <= seed < _SEED_LIMIT:
+        raise _Problem(not_allowed("seed", seed, _SEED_ALLOWED))
+    stopping = _parse_stopping(data.get("stopping", {}))
+    batch_bytes = _parse_engine(data.get("engine", {}))
+    studies = _require(data, "study", "one or more [[study]] tables")
+    if not isinstance(studies, list) or not studies:
+        raise _Problem(not_allowed("study", studies, "a non-empty array of tables ([[study]])"))
+    points: list[Point] = []
+    seen: set[Point] = set()
+    labels: set[str] = set()
+    for index, study in enumerate(studies):
+        label, study_points = _parse_study(study, index)
+        if label in labels:
+            raise _Problem(not_allowed(f"study[{index}].label", label, "a label no earlier study uses"))
+        labels.add(label)
+        for point in study_points:
+            if point not in seen:
+                seen.add(point)
+                points.append(point)
+    return Sweep(
+        name=name,
+        seed=int(seed),
+        stopping=stopping,
+        points=points,
+        source_text=text,
+        source=source,
+        batch_bytes=batch_bytes,
+    )
+
+
+def _parse_stopping(table: object) -> Stopping:
+    if not isinstance(table, dict):
+        raise _Problem(not_allowed("stopping", table, "a table ([stopping])"))
+    _check_keys(table, "stopping", _STOPPING_KEYS)
+    failure_target = _positive_int(
+        table.get("failure_target", 200), "stopping.failure_target", "an integer >= 1"
+    )
+    shot_budget = _positive_int(
+        table.get("shot_budget", 1_000_000), "stopping.shot_budget", "an integer >= 1"
+    )
+    precision: float | None = None
+    if "relative_precision" in table:
+        value = table["relative_precision"]
+        if not _is_number(value) or not 0 < value < 1:
+            raise _Problem(not_allowed("stopping.relative_precision", value, "a number in (0, 1)"))
+        precision = float(value)
+    return Stopping(failure_target=failure_target, shot_budget=shot_budget, relative_precision=precision)
+
+
+def _parse_engine(table: object) -> int:
+    if not isinstance(table, dict):
+        raise _Problem(not_allowed("engine", table, "a table ([engine])"))
+    _check_keys(table, "engine", _ENGINE_KEYS)
+    value = table.get("batch_bytes", DEFAULT_BATCH_BYTES)
+    if not _is_int(value) or value < MIN_BATCH_BYTES:
+        raise _Problem(not_allowed("engine.batch_bytes", value, f"an integer >= {MIN_BATCH_BYTES}"))
+    return int(value)
+
+
+def _parse_study(study: object, index: int) -> tuple[str, list[Point]]:
+    at = f"study[{index}]"
+    if not isinstance(study, dict):
+        raise _Problem(not_allowed(at, study, "a table ([[study]])"))
+    _check_keys(study, at, _STUDY_KEYS)
+
+    code_allowed = _one_of(CODE_FAMILIES)
+    code = _require(study, "code", code_allowed, at)
+    if not isinstance(code, str) or code not in CODE_FAMILIES:
+        raise _Problem(not_allowed(f"{at}.code", code, code_allowed))
+    family = CODE_FAMILIES[code]
+
+    distances = _parse_distances(_require(study, "distances", "a non-empty list of integers", at), family, at)
+    rounds_spec = _require(study, "rounds", _ROUNDS_ALLOWED, at)
+    rounds = {d: parse_rounds(rounds_spec, d, f"{at}.rounds") for d in distances}
+    bases = _parse_bases(study.get("basis", ["Z"]), family, at)
+
+    noise_allowed = _one_of(NOISE_MODELS)
+    noise = _require(study, "noise", noise_allowed, at)
+    if not isinstance(noise, str) or noise not in NOISE_MODELS:
+        raise _Problem(not_allowed(f"{at}.noise", noise, noise_allowed))
+    model = NOISE_MODELS[noise]
+
+    rates = _parse_p(_require(study, "p", _P_ALLOWED, at), model, at)
+    decoders = _parse_decoders(
+        _require(study, "decoders", f"a non-empty list of names from {_names(DECODERS)}", at), at
+    )
+    label = study.get("label", str(index))
+    if not isinstance(label, str) or not label:
+        raise _Problem(not_allowed(f"{at}.label", label, "a non-empty string"))
+    options = _parse_noise_options(study.get("noise_options", {}), model, at)
+
+    points = [
+        Point(
+            code=code,
+            distance=d,
+            rounds=r,
+            basis=b,
+            noise=noise,
+            p=p,
+            decoder=decoder,
+            noise_options=options,
+            study=label,
+        )
+        for d in distances
+        for r in rounds[d]
+        for b in bases
+        for p in rates
+        for decoder in decoders
+    ]
+    return label, points
+
+
+def _parse_distances(value: object, family: CodeFamily, at: str) -> list[int]:
+    path = f"{at}.distances"
+    if not isinstance(value, list) or not value:
+        raise _Problem(not_allowed(path, value, "a non-empty list of integers"))
+    distances: list[int] = []
+    for i, d in enumerate(value):
+        if not _is_int(d):
+            raise _Problem(not_allowed(f"{path}[{i}]", d, "an integer"))
+        problem = family.distance_problem(int(d))
+        if problem is not None:
+            raise _Problem(not_allowed(f"{path}[{i}]", d, f"{problem} for {family.name}"))
+        distances.append(int(d))
+    return distances
+
+
+def _parse_bases(value: object, family: CodeFamily, at: str) -> list[Basis]:
+    path = f"{at}.basis"
+    allowed = _one_of(family.bases)
+    if isinstance(value, str):
+        if value not in family.bases:
+            raise _Problem(not_allowed(path, value, f"{allowed} or a list of them"))
+        return [value]
+    if not isinstance(value, list) or not value:
+        raise _Problem(not_allowed(path, value, f"{allowed} or a non-empty list of them"))
+    bases: list[Basis] = []
+    for i, b in enumerate(value):
+        if not isinstance(b, str) or b not in family.bases:
+            raise _Problem(not_allowed(f"{path}[{i}]", b, allowed))
+        bases.append(b)
+    return bases
+
+
+def _parse_p(value: object, model: type[NoiseModel], at: str) -> list[float]:
+    path = f"{at}.p"
+    in_range = f"a number in [0, {model.p_max:g}] for {model.name}"
+    if isinstance(value, dict):
+        _check_keys(value, path, ("geomspace",))
+        spec = _require(value, "geomspace", _GEOMSPACE_ALLOWED, path)
+        rates = _geomspace(spec, f"{path}.geomspace", model)
+        for rate in rates:
+            if not 0 <= rate <= model.p_max:
+                raise _Problem(not_allowed(f"{path}.geomspace", spec, in_range))
+        return rates
+    if not isinstance(value, list) or not value:
+        raise _Problem(not_allowed(path, value, _P_ALLOWED))
+    rates = []
+    for i, p in enumerate(value):
+        if not _is_number(p) or not 0 <= p <= model.p_max:
+            raise _Problem(not_allowed(f"{path}[{i}]", p, in_range))
+        rates.append(float(p))
+    return rates
+
+
+def _geomspace(spec: object, path: str, model: type[NoiseModel]) -> list[float]:
+    if not isinstance(spec, list) or len(spec) != 3:
+        raise _Problem(not_allowed(path, spec, _GEOMSPACE_ALLOWED))
+    low, high, count = spec
+    if not _is_number(low) or not low > 0:
+        raise _Problem(not_allowed(f"{path}[0]", low, "a number > 0 (the lowest p)"))
+    if not _is_number(high) or not low <= high <= model.p_max:
+        raise _Problem(
+            not_allowed(f"{path}[1]", high, f"a number in [{low:g}, {model.p_max:g}] (low <= high <= p_max)")
+        )
+    if not _is_int(count) or count < 1:
+        raise _Problem(not_allowed(f"{path}[2]", count, "an integer >= 1 (how many rates)"))
+    values = np.geomspace(float(low), float(high), int(count))
+    return [float(f"{v:.{P_DIGITS}g}") for v in values]
+
+
+def _parse_decoders(value: object, at: str) -> list[str]:
+    path = f"{at}.decoders"
+    allowed = _one_of(DECODERS)
+    if not isinstance(value, list) or not value:
+        raise _Problem(not_allowed(path, value, f"a non-empty list of names from {_names(DECODERS)}"))
+    for i, name in enumerate(value):
+        if not isinstance(name, str) or name not in DECODERS:
+            raise _Problem(not_allowed(f"{path}[{i}]", name, allowed))
+    return [str(name) for name in value]
+
+
+def _parse_noise_options(
+    value: object, model: type[NoiseModel], at: str
+) -> tuple[tuple[str, str], ...]:
+    path = f"{at}.noise_options"
+    if not isinstance(value, dict):
+        raise _Problem(not_allowed(path, value, "a table of option = value"))
+    _check_keys(value, path, tuple(model.options))
+    chosen: dict[str, str] = {}
+    for key, allowed in model.options.items():
+        picked = value.get(key, allowed[0])
+        if not isinstance(picked, str) or picked not in allowed:
+            raise _Problem(not_allowed(f"{path}.{key}", picked, f"{_one_of(allowed)} for {model.name}"))
+        chosen[key] = picked
+    return tuple(sorted(chosen.items()))
+
+
+def _check_keys(table: dict[Any, Any], at: str, allowed: tuple[str, ...]) -> None:
+    for key in table:
+        if key not in allowed:
+            path = f"{at}.{key}" if at else str(key)
+            listed = ", ".join(allowed) if allowed else "(none)"
+            raise _Problem(f"{path} is not a known key; allowed keys: {listed}.")
+
+
+def _require(table: dict[str, Any], key: str, what: str, at: str = "") -> Any:
+    if key not in table:
+        path = f"{at}.{key}" if at else key
+        raise _Problem(f"{path} is required ({what}).")
+    return table[key]
+
+
+def _positive_int(value: object, path: str, allowed: str) -> int:
+    if not _is_int(value) or value < 1:
+        raise _Problem(not_allowed(path, value, allowed))
+    return int(value)
+
+
+def _is_int(value: object) -> TypeGuard[int]:
+    """An integer, but not a bool (numpy integers count, for dict input)."""
+    return isinstance(value, (int, np.integer)) and not isinstance(value, bool)
+
+
+def _is_number(value: object) -> TypeGuard[float]:
+    """An integer or a float, but not a bool."""
+    return isinstance(value, (int, float, np.integer, np.floating)) and not isinstance(value, bool)
+
+
+def _names(names: Iterable[str]) -> str:
+    return ", ".join(repr(n) for n in names)
+
+
+def _one_of(names: Iterable[str]) -> str:
+    return "one of " + _names(names)
+
+
+def _one_line(text: str) -> str:
+    return " ".join(text.split())

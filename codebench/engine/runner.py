@@ -1,0 +1,174 @@
+"""The coordinator: decides which batches to run and records what comes back.
+
+Batches of a point are submitted speculatively (several in flight, so all
+workers stay busy) but counted in batch order (:mod:`codebench.engine.tally`).
+Each finished batch is committed to the store at once, so an interrupt loses
+only the batches in flight, and a rerun picks up every stored batch.
+"""
+
+from __future__ import annotations
+
+import math
+import signal
+from dataclasses import dataclass, field
+from pathlib import Path
+from types import FrameType
+from typing import Iterator
+
+from codebench.engine.executors import Executor
+from codebench.engine.points import Point
+from codebench.engine.progress import PointStatus, Progress
+from codebench.engine.stopping import Stopping, batch_cap, batch_sizes
+from codebench.engine.tally import Tally, tally, usable_batches
+from codebench.engine.worker import BatchResult, BatchTask, batch_seed
+from codebench.errors import Interrupted
+from codebench.stats import Z95
+from codebench.store import Store, StoredPoint
+
+
+@dataclass
+class PointRun:
+    """The coordinator's view of one point during a run."""
+
+    stored: StoredPoint
+    seed: int
+    sizes: list[int]
+    batches: dict[int, BatchResult]
+    in_flight: set[int] = field(default_factory=set)
+    tally: Tally = field(default_factory=Tally)
+
+    def refresh(self, stopping: Stopping) -> None:
+        self.tally = tally(self.sizes, self.batches, stopping)
+
+    def known(self) -> tuple[int, int, float]:
+        """Shots, failures and seconds of every usable stored batch."""
+        results = self.batches.values()
+        return (sum(r.shots for r in results), sum(r.failures for r in results), sum(r.seconds for r in results))
+
+    def next_task(self, stopping: Stopping) -> BatchTask | None:
+        """The next batch worth running now, or ``None``."""
+        if self.tally.finished:
+            return None
+        index = next((i for i in range(len(self.sizes)) if i not in self.batches and i not in self.in_flight), None)
+        if index is None:
+            return None
+        shots, failures, _ = self.known()
+        if shots == 0:
+            if len(self.in_flight) >= 2:
+                return None
+        elif self.in_flight:
+            # Hold back once the batches in flight are expected to end the point.
+            pending = sum(self.sizes[i] for i in self.in_flight)
+            if failures + failures / shots * pending >= _failures_needed(stopping):
+                return None
+        point = self.stored.point
+        return BatchTask(
+            point_key=self.stored.key,
+            params=point.params(),
+            batch_index=index,
+            shots=self.sizes[index],
+            seed=batch_seed(self.seed, self.stored.key, index, self.sizes[index]),
+        )
+
+    def status(self) -> PointStatus:
+        shots, failures, seconds = self.known()
+        return PointStatus(self.stored.point.label(), self.tally, shots, failures, seconds)
+
+
+def _failures_needed(stopping: Stopping) -> float:
+    """Failures that will certainly stop the point (used only to limit speculation)."""
+    needed = float(stopping.failure_target) if stopping.failure_target is not None else math.inf
+    if stopping.relative_precision is not None:
+        needed = min(needed, (Z95 / stopping.relative_precision) ** 2 + 1)
+    return needed
+
+
+def describe(point: Point, seed: int, batch_bytes: int) -> StoredPoint:
+    """Key, size and batch cap of a point (builds its circuit once)."""
+    circuit = point.circuit()
+    return StoredPoint(
+        key=point.key(seed),
+        point=point,
+        qubits=point.qubit_count(),
+        detectors=circuit.num_detectors,
+        batch_cap=batch_cap(circuit.num_detectors, batch_bytes),
+    )
+
+
+@dataclass(frozen=True)
+class RunPlan:
+    name: str
+    seed: int
+    stopping: Stopping
+    members: list[tuple[StoredPoint, str]]
+
+
+class _StopSignals:
+    """Turn SIGTERM into :class:`Interrupted` while a run is active (SIGINT already raises)."""
+
+    def __enter__(self) -> None:
+        self._previous = signal.getsignal(signal.SIGTERM)
+        try:
+            signal.signal(signal.SIGTERM, self._raise)
+        except ValueError:  # not the main thread: leave signals alone
+            self._previous = None
+
+    @staticmethod
+    def _raise(signum: int, frame: FrameType | None) -> None:
+        raise Interrupted(f"signal {signum}")
+
+    def __exit__(self, *exc: object) -> None:
+        if self._previous is not None:
+            signal.signal(signal.SIGTERM, self._previous)
+
+
+def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress | None) -> list[PointRun]:
+    """Run every point of ``plan`` to its stopping rule, committing each batch."""
+    stored = store.all_batches()
+    runs: list[PointRun] = []
+    for member, _ in plan.members:
+        sizes = batch_sizes(plan.stopping.shot_budget, member.batch_cap)
+        run = PointRun(member, plan.seed, sizes, usable_batches(sizes, stored.get(member.key, [])))
+        run.refresh(plan.stopping)
+        runs.append(run)
+    by_key = {run.stored.key: run for run in runs}
+    interrupted = False
+    try:
+        with _StopSignals():
+            while not all(run.tally.finished for run in runs):
+                _fill(runs, plan.stopping, executor)
+                for result in executor.completed(timeout=0.5):
+                    run = by_key[result.point_key]
+                    run.in_flight.discard(result.batch_index)
+                    store.add_batch(result)
+                    run.batches[result.batch_index] = result
+                    run.refresh(plan.stopping)
+                    if progress is not None:
+                        progress.record(result.shots, result.failures)
+                if progress is not None:
+                    progress.update([r.status() for r in runs])
+    except (KeyboardInterrupt, Interrupted):
+        interrupted = True
+        raise Interrupted("interrupted") from None
+    finally:
+        executor.close(wait=not interrupted)
+        if progress is not None:
+            progress.finish([r.status() for r in runs])
+    return runs
+
+
+def _fill(runs: list[PointRun], stopping: Stopping, executor: Executor) -> None:
+    for task in _candidates(runs, stopping, executor):
+        executor.submit(task)
+
+
+def _candidates(runs: list[PointRun], stopping: Stopping, executor: Executor) -> Iterator[BatchTask]:
+    for run in runs:
+        while executor.in_flight() < executor.capacity:
+            task = run.next_task(stopping)
+            if task is None:
+                break
+            run.in_flight.add(task.batch_index)
+            yield task
+        if executor.in_flight() >= executor.capacity:
+            return

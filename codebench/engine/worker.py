@@ -1,0 +1,116 @@
+"""What a worker does with one batch: sample, decode, count.
+
+Everything heavy stays in the libraries: stim samples bit-packed detection
+events and observables, the decoder decodes the whole batch, numpy compares.
+Compiled circuits and decoders are cached per point key in the worker
+process, so a point is compiled once per worker, not once per batch.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import time
+from collections import OrderedDict
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import stim
+
+from codebench.decoders import get_decoder
+from codebench.decoders.base import Decoder
+from codebench.engine.points import Point
+
+#: Compiled points a worker keeps (least recently used evicted first).
+CACHE_SIZE = 8
+
+
+@dataclass(frozen=True)
+class BatchTask:
+    """One batch of one point, self-contained so it can be shipped to any worker."""
+
+    point_key: str
+    params: dict[str, Any]
+    batch_index: int
+    shots: int
+    seed: int
+
+
+@dataclass(frozen=True)
+class BatchResult:
+    """Counts of one finished batch. ``seconds`` covers sampling and decoding."""
+
+    point_key: str
+    batch_index: int
+    shots: int
+    failures: int
+    seconds: float
+    decode_seconds: float
+
+
+@dataclass
+class CompiledPoint:
+    circuit: stim.Circuit
+    decoder: Decoder
+    num_detectors: int
+    num_observables: int
+
+
+_cache: OrderedDict[str, CompiledPoint] = OrderedDict()
+
+
+def batch_seed(sweep_seed: int, point_key: str, batch_index: int, shots: int) -> int:
+    """Seed of one batch, derived from the sweep seed, the point and the batch.
+
+    The batch size is part of it, so a batch re-cut after a budget change
+    never reuses the random stream of a stored batch.
+    """
+    text = f"{sweep_seed}:{point_key}:{batch_index}:{shots}"
+    return int.from_bytes(hashlib.sha256(text.encode()).digest()[:8], "little") >> 1
+
+
+def compile_point(params: dict[str, Any]) -> CompiledPoint:
+    """Build the noisy circuit and compile the decoder for one point."""
+    point = Point.from_params(params)
+    circuit = point.circuit()
+    decoder_cls = get_decoder(point.decoder)
+    decoder = decoder_cls(**dict(point.decoder_options))
+    dem = circuit.detector_error_model(decompose_errors=decoder_cls.wants_decomposed)
+    decoder.compile(dem)
+    return CompiledPoint(circuit, decoder, circuit.num_detectors, circuit.num_observables)
+
+
+def compiled(point_key: str, params: dict[str, Any]) -> CompiledPoint:
+    """The cached compiled point, compiling it on first use."""
+    if point_key in _cache:
+        _cache.move_to_end(point_key)
+        return _cache[point_key]
+    entry = compile_point(params)
+    _cache[point_key] = entry
+    while len(_cache) > CACHE_SIZE:
+        _cache.popitem(last=False)
+    return entry
+
+
+def count_failures(predicted: np.ndarray, actual: np.ndarray) -> int:
+    """Shots where any bit-packed observable prediction differs from the truth."""
+    return int(np.count_nonzero(np.any(predicted != actual, axis=1)))
+
+
+def run_batch(task: BatchTask) -> BatchResult:
+    """Sample and decode one batch; pure function of the task."""
+    point = compiled(task.point_key, task.params)
+    start = time.perf_counter()
+    sampler = point.circuit.compile_detector_sampler(seed=task.seed)
+    detectors, observables = sampler.sample(task.shots, separate_observables=True, bit_packed=True)
+    decode_start = time.perf_counter()
+    predicted = point.decoder.decode_batch(detectors, bit_packed=True)
+    end = time.perf_counter()
+    return BatchResult(
+        point_key=task.point_key,
+        batch_index=task.batch_index,
+        shots=task.shots,
+        failures=count_failures(predicted, observables),
+        seconds=end - start,
+        decode_seconds=end - decode_start,
+    )

@@ -1,0 +1,67 @@
+"""Results table: one row per point, rebuilt from the store's batch rows."""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from pathlib import Path
+
+import pandas as pd
+
+from codebench.engine.stopping import batch_sizes
+from codebench.engine.tally import tally, usable_batches
+from codebench.stats import per_round, wilson_interval
+from codebench.store import Store
+
+#: The fixed columns, in order; more follow them.
+COLUMNS = [
+    "study", "code", "distance", "rounds", "basis", "noise", "p", "decoder",
+    "shots", "failures", "seconds", "failure_rate", "failure_rate_low", "failure_rate_high",
+    "per_round_rate", "per_round_low", "per_round_high", "qubits", "detectors",
+]
+EXTRA_COLUMNS = ["decode_seconds", "batches", "complete", "noise_options", "decoder_options", "key"]
+
+
+def results_frame(store: Store) -> pd.DataFrame:
+    """The results table of the store's latest run.
+
+    ``failure_rate`` is failures / shots with a 95% Wilson interval; the
+    per-round columns map the rate and both interval ends through
+    eps = (1 - (1 - 2 P)^(1/rounds)) / 2, which is monotone, so the interval
+    carries over exactly.
+    """
+    stopping = store.stopping()
+    stored = store.all_batches()
+    rows = []
+    for member, study in store.members():
+        point = member.point
+        sizes = batch_sizes(stopping.shot_budget, member.batch_cap)
+        t = tally(sizes, usable_batches(sizes, stored.get(member.key, [])), stopping)
+        rate = t.failures / t.shots if t.shots else float("nan")
+        low, high = wilson_interval(t.failures, t.shots) if t.shots else (float("nan"), float("nan"))
+        conv = (lambda x: per_round(x, point.rounds)) if t.shots else (lambda x: float("nan"))
+        rows.append({
+            "study": study, "code": point.code, "distance": point.distance, "rounds": point.rounds,
+            "basis": point.basis, "noise": point.noise, "p": point.p, "decoder": point.decoder,
+            "shots": t.shots, "failures": t.failures, "seconds": t.seconds,
+            "failure_rate": rate, "failure_rate_low": low, "failure_rate_high": high,
+            "per_round_rate": conv(rate), "per_round_low": conv(low), "per_round_high": conv(high),
+            "qubits": member.qubits, "detectors": member.detectors,
+            "decode_seconds": t.decode_seconds, "batches": t.batches, "complete": t.finished,
+            "noise_options": json.dumps(dict(point.noise_options), sort_keys=True),
+            "decoder_options": json.dumps(dict(point.decoder_options), sort_keys=True),
+            "key": member.key,
+        })
+    return pd.DataFrame(rows, columns=COLUMNS + EXTRA_COLUMNS)
+
+
+def write_csv(frame: pd.DataFrame, path: str | Path) -> Path:
+    """Write ``frame`` atomically (a crash never leaves half a CSV)."""
+    target = Path(path)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=".results-", suffix=".csv", dir=target.parent)
+    with os.fdopen(fd, "w", newline="") as handle:
+        frame.to_csv(handle, index=False, float_format="%.10g")
+    os.replace(tmp, target)
+    return target

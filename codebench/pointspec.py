@@ -1,0 +1,37 @@
+"""Pick one point for ``codebench circuit``: from a sweep file, or from explicit options."""
+
+from __future__ import annotations
+
+import argparse
+
+from codebench.config import load_sweep, parse_sweep
+from codebench.engine.points import Point
+from codebench.errors import ConfigError, not_allowed
+
+
+def point_list(config: str) -> str:
+    """One line per point of a sweep file, with the index ``--point`` takes."""
+    sweep = load_sweep(config)
+    return "\n".join(f"{i}: {p.label()}" for i, p in enumerate(sweep.points))
+
+
+def point_from_args(args: argparse.Namespace) -> Point:
+    """The point named by ``--point N`` in a sweep file, or by ``--code ... --p``."""
+    if args.config is not None:
+        sweep = load_sweep(args.config)
+        if args.point is None:
+            raise ConfigError(f"--point is required with a sweep file (0 to {len(sweep.points) - 1}).")
+        if not 0 <= args.point < len(sweep.points):
+            raise ConfigError(not_allowed("--point", args.point, f"an integer from 0 to {len(sweep.points) - 1}"))
+        return sweep.points[args.point]
+    missing = [flag for flag in ("code", "distance", "noise", "p") if getattr(args, flag) is None]
+    if missing:
+        raise ConfigError("give a sweep file and --point N, or all of --code, --distance, --noise, --p "
+                          f"(missing: {', '.join('--' + m for m in missing)}).")
+    rounds: object = args.rounds if args.rounds is not None else "d"
+    if isinstance(rounds, str) and rounds.isdigit():
+        rounds = int(rounds)
+    study = {"code": args.code, "distances": [args.distance], "rounds": rounds, "basis": [args.basis],
+             "noise": args.noise, "p": [args.p], "decoders": ["mwpm"]}
+    sweep = parse_sweep({"name": "circuit", "seed": 0, "study": [study]}, source="command line")
+    return sweep.points[0]

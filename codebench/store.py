@@ -1,0 +1,194 @@
+"""The results store: one SQLite file per sweep folder.
+
+Tables: ``meta`` (what wrote the file, the stopping rule of the latest run),
+``points`` (each point's canonical parameters and circuit size), ``members``
+(the points of the latest run, in grid order, with their study label) and
+``batches`` (one row per finished batch, written in its own transaction).
+Counts are never stored as totals: they are recomputed from the batch rows
+(:mod:`codebench.engine.tally`), so an interrupted run loses at most the
+batches in flight and can never count one twice.
+"""
+
+from __future__ import annotations
+
+import json
+import sqlite3
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Iterator
+
+from codebench.engine.points import Point
+from codebench.engine.stopping import Stopping
+from codebench.engine.worker import BatchResult
+from codebench.errors import StoreError
+
+#: Written into the SQLite header so a foreign file is recognised ("CBNC").
+APPLICATION_ID = 0x43424E43
+SCHEMA_VERSION = 1
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS points (
+    key TEXT PRIMARY KEY,
+    params TEXT NOT NULL,
+    qubits INTEGER NOT NULL,
+    detectors INTEGER NOT NULL,
+    batch_cap INTEGER NOT NULL
+);
+CREATE TABLE IF NOT EXISTS members (
+    position INTEGER PRIMARY KEY,
+    key TEXT NOT NULL REFERENCES points(key),
+    study TEXT NOT NULL
+);
+CREATE TABLE IF NOT EXISTS batches (
+    key TEXT NOT NULL REFERENCES points(key),
+    batch_index INTEGER NOT NULL,
+    shots INTEGER NOT NULL,
+    failures INTEGER NOT NULL,
+    seconds REAL NOT NULL,
+    decode_seconds REAL NOT NULL,
+    PRIMARY KEY (key, batch_index, shots)
+);
+"""
+
+
+@dataclass(frozen=True)
+class StoredPoint:
+    """A point as the store knows it."""
+
+    key: str
+    point: Point
+    qubits: int
+    detectors: int
+    batch_cap: int
+
+
+class Store:
+    """Open (or create) the store at ``path``.
+
+    Raises :class:`~codebench.errors.StoreError` for a file that is not a
+    codebench store; such a file is left untouched.
+    """
+
+    def __init__(self, path: str | Path, create: bool = True) -> None:
+        self.path = Path(path)
+        existed = self.path.exists()
+        if not existed and not create:
+            raise StoreError(f"no results store at '{self.path}'.")
+        if existed:
+            self._check_foreign()
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        self._db = sqlite3.connect(self.path, isolation_level=None, timeout=30)
+        try:
+            self._db.execute("PRAGMA journal_mode=WAL")
+            self._db.execute("PRAGMA synchronous=NORMAL")
+            if not existed:
+                self._db.execute(f"PRAGMA application_id={APPLICATION_ID}")
+                self._db.execute(f"PRAGMA user_version={SCHEMA_VERSION}")
+            self._db.executescript(_SCHEMA)
+        except sqlite3.DatabaseError as exc:
+            self._db.close()
+            raise StoreError(f"'{self.path}' is not a usable results store: {exc}.") from exc
+
+    def _check_foreign(self) -> None:
+        try:
+            with self.path.open("rb") as handle:
+                header = handle.read(100)
+        except OSError as exc:
+            raise StoreError(f"cannot read results store '{self.path}': {exc}.") from exc
+        if len(header) < 100 or not header.startswith(b"SQLite format 3\x00"):
+            raise StoreError(f"'{self.path}' is not a codebench results store (not an SQLite file); left untouched.")
+        if int.from_bytes(header[68:72], "big") != APPLICATION_ID:
+            raise StoreError(f"'{self.path}' is an SQLite file written by another program; left untouched.")
+
+    def close(self) -> None:
+        self._db.close()
+
+    def __enter__(self) -> Store:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    # writing -------------------------------------------------------------
+
+    def begin_run(self, stopping: Stopping, members: list[tuple[StoredPoint, str]], meta: dict[str, str]) -> None:
+        """Record the points of this run (grid order) and its stopping rule, in one transaction."""
+        with self._transaction():
+            for stored, _ in members:
+                self._db.execute(
+                    "INSERT OR IGNORE INTO points VALUES (?, ?, ?, ?, ?)",
+                    (stored.key, json.dumps(stored.point.params(), sort_keys=True), stored.qubits,
+                     stored.detectors, stored.batch_cap),
+                )
+            self._db.execute("DELETE FROM members")
+            self._db.executemany(
+                "INSERT INTO members VALUES (?, ?, ?)",
+                [(i, stored.key, study) for i, (stored, study) in enumerate(members)],
+            )
+            rule = {
+                "failure_target": stopping.failure_target,
+                "shot_budget": stopping.shot_budget,
+                "relative_precision": stopping.relative_precision,
+            }
+            for key, value in {**meta, "stopping": json.dumps(rule)}.items():
+                self._db.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", (key, value))
+
+    def add_batch(self, result: BatchResult) -> None:
+        """Record one finished batch in its own transaction (a repeat is ignored)."""
+        with self._transaction():
+            self._db.execute(
+                "INSERT OR IGNORE INTO batches VALUES (?, ?, ?, ?, ?, ?)",
+                (result.point_key, result.batch_index, result.shots, result.failures,
+                 result.seconds, result.decode_seconds),
+            )
+
+    def _transaction(self) -> _Transaction:
+        return _Transaction(self._db)
+
+    # reading -------------------------------------------------------------
+
+    def meta(self) -> dict[str, str]:
+        return dict(self._db.execute("SELECT key, value FROM meta").fetchall())
+
+    def stopping(self) -> Stopping:
+        raw = self.meta().get("stopping")
+        if raw is None:
+            raise StoreError(f"'{self.path}' holds no finished sweep set-up.")
+        return Stopping(**json.loads(raw))
+
+    def members(self) -> list[tuple[StoredPoint, str]]:
+        rows = self._db.execute(
+            "SELECT p.key, p.params, p.qubits, p.detectors, p.batch_cap, m.study "
+            "FROM members m JOIN points p ON p.key = m.key ORDER BY m.position"
+        ).fetchall()
+        return [
+            (StoredPoint(key, Point.from_params(json.loads(params), study), qubits, detectors, cap), study)
+            for key, params, qubits, detectors, cap, study in rows
+        ]
+
+    def batches(self, key: str) -> Iterator[BatchResult]:
+        for row in self._db.execute(
+            "SELECT key, batch_index, shots, failures, seconds, decode_seconds FROM batches WHERE key = ?",
+            (key,),
+        ):
+            yield BatchResult(*row)
+
+    def all_batches(self) -> dict[str, list[BatchResult]]:
+        out: dict[str, list[BatchResult]] = {}
+        for row in self._db.execute(
+            "SELECT key, batch_index, shots, failures, seconds, decode_seconds FROM batches"
+        ):
+            out.setdefault(row[0], []).append(BatchResult(*row))
+        return out
+
+
+class _Transaction:
+    def __init__(self, db: sqlite3.Connection) -> None:
+        self._db = db
+
+    def __enter__(self) -> None:
+        self._db.execute("BEGIN IMMEDIATE")
+
+    def __exit__(self, exc_type: Any, *rest: Any) -> None:
+        self._db.execute("ROLLBACK" if exc_type else "COMMIT")
