@@ -193,14 +193,14 @@ def build_memory(layout: Layout, rounds: int, basis: Basis, gate_set: GateSet = 
                     continue
                 pairs.append((q, check.measure) if check.basis == "Z" else (check.measure, q))
             b.entangle(pairs, rnd)
-        meas = {"Z": sorted(by_type["Z"]), "X": sorted(by_type["X"])}
+        meas: dict[Basis, list[int]] = {"Z": sorted(by_type["Z"]), "X": sorted(by_type["X"])}
         recs = b.measure(meas, rnd)
         record_of = dict(zip(meas["Z"] + meas["X"], recs))
         for m in order:
             check = check_of[m]
             if rnd == 0 and check.basis != basis:
                 continue
-            records = (record_of[m],) if rnd == 0 else (record_of[m], previous[m])
+            records: tuple[int, ...] = (record_of[m],) if rnd == 0 else (record_of[m], previous[m])
             x, y = layout.coords[m]
             circuit.detectors.append(Detector(records, (x, y, float(rnd)), len(circuit.layers) - 1))
         previous = record_of

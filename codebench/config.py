@@ -1,6 +1,6 @@
 """Sweep files: read, validate and expand them into points.
 
-A sweep file is TOML (see ``/work/shared/design.md``, "Sweep file")::
+A sweep file is TOML::
 
     name = "demo"
     seed = 1234

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import math
 import os
 import tempfile
 from pathlib import Path
@@ -23,6 +24,10 @@ COLUMNS = [
 EXTRA_COLUMNS = ["decode_seconds", "batches", "complete", "noise_options", "decoder_options", "key"]
 
 
+def _per_round(total: float, rounds: int) -> float:
+    return float("nan") if math.isnan(total) else per_round(total, rounds)
+
+
 def results_frame(store: Store) -> pd.DataFrame:
     """The results table of the store's latest run.
 
@@ -40,13 +45,13 @@ def results_frame(store: Store) -> pd.DataFrame:
         t = tally(sizes, usable_batches(sizes, stored.get(member.key, [])), stopping)
         rate = t.failures / t.shots if t.shots else float("nan")
         low, high = wilson_interval(t.failures, t.shots) if t.shots else (float("nan"), float("nan"))
-        conv = (lambda x: per_round(x, point.rounds)) if t.shots else (lambda x: float("nan"))
         rows.append({
             "study": study, "code": point.code, "distance": point.distance, "rounds": point.rounds,
             "basis": point.basis, "noise": point.noise, "p": point.p, "decoder": point.decoder,
             "shots": t.shots, "failures": t.failures, "seconds": t.seconds,
             "failure_rate": rate, "failure_rate_low": low, "failure_rate_high": high,
-            "per_round_rate": conv(rate), "per_round_low": conv(low), "per_round_high": conv(high),
+            "per_round_rate": _per_round(rate, point.rounds), "per_round_low": _per_round(low, point.rounds),
+            "per_round_high": _per_round(high, point.rounds),
             "qubits": member.qubits, "detectors": member.detectors,
             "decode_seconds": t.decode_seconds, "batches": t.batches, "complete": t.finished,
             "noise_options": json.dumps(dict(point.noise_options), sort_keys=True),

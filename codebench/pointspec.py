@@ -23,7 +23,8 @@ def point_from_args(args: argparse.Namespace) -> Point:
             raise ConfigError(f"--point is required with a sweep file (0 to {len(sweep.points) - 1}).")
         if not 0 <= args.point < len(sweep.points):
             raise ConfigError(not_allowed("--point", args.point, f"an integer from 0 to {len(sweep.points) - 1}"))
-        return sweep.points[args.point]
+        chosen: Point = sweep.points[args.point]
+        return chosen
     missing = [flag for flag in ("code", "distance", "noise", "p") if getattr(args, flag) is None]
     if missing:
         raise ConfigError("give a sweep file and --point N, or all of --code, --distance, --noise, --p "

@@ -5,8 +5,9 @@ from __future__ import annotations
 import pandas as pd
 
 
-def _rate(value: float) -> str:
-    return "-" if pd.isna(value) else f"{value:.3e}"
+def _rate(value: object) -> str:
+    number = float(value)  # type: ignore[arg-type]
+    return "-" if number != number else f"{number:.3e}"
 
 
 def summary_table(frame: pd.DataFrame) -> str:

@@ -6,8 +6,11 @@ from dataclasses import dataclass
 
 from codebench.stats import wilson_interval
 
-#: First batch size; later batches double up to the cap.
+#: First batch size; batches double up to FAST_GROWTH_LIMIT, then grow by a quarter.
 FIRST_BATCH = 1024
+#: Above this size batches grow by 25% only, so the last batch of a point (run
+#: past the moment its stopping rule is met) wastes little work.
+FAST_GROWTH_LIMIT = 8192
 #: Upper bound on the bytes of bit-packed detection events one batch may hold.
 DEFAULT_BATCH_BYTES = 32 * 1024 * 1024
 #: Upper bound on shots per batch, whatever the circuit size.
@@ -47,13 +50,15 @@ def batch_cap(num_detectors: int, batch_bytes: int = DEFAULT_BATCH_BYTES) -> int
 
 
 def batch_sizes(shot_budget: int, cap: int) -> list[int]:
-    """Sizes of batches 0, 1, 2, ...: doubling from FIRST_BATCH up to ``cap``, truncated at the budget.
+    """Sizes of batches 0, 1, 2, ...: growing from FIRST_BATCH up to ``cap``, truncated at the budget.
 
     A pure function of its arguments, so every run and worker count sees the
     same batches.
 
     >>> batch_sizes(5000, 2048)
     [1024, 2048, 1928]
+    >>> batch_sizes(40000, 1 << 20)
+    [1024, 2048, 4096, 8192, 10240, 12800, 1600]
     """
     sizes: list[int] = []
     total = 0
@@ -62,5 +67,5 @@ def batch_sizes(shot_budget: int, cap: int) -> list[int]:
         take = min(size, shot_budget - total)
         sizes.append(take)
         total += take
-        size = min(size * 2, cap)
+        size = min(size * 2 if size < FAST_GROWTH_LIMIT else size + size // 4, cap)
     return sizes
