@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import multiprocessing
 import os
+import signal
 from abc import ABC, abstractmethod
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from typing import ClassVar
@@ -66,9 +67,9 @@ class InProcessExecutor(Executor):
         return len(self._queue)
 
 
-def _warm_up() -> None:
-    """Import the heavy libraries once in the fork server, before workers fork."""
-    import codebench.engine.worker  # noqa: F401
+def _ignore_interrupts() -> None:
+    """Workers leave Ctrl-C to the coordinator, which stops them itself."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
 class LocalExecutor(Executor):
@@ -82,7 +83,7 @@ class LocalExecutor(Executor):
         context = multiprocessing.get_context(method)
         if method == "forkserver":
             context.set_forkserver_preload(["codebench.engine.worker"])
-        self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context)
+        self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_ignore_interrupts)
         self._futures: set[Future[BatchResult]] = set()
 
     @property
@@ -103,6 +104,10 @@ class LocalExecutor(Executor):
         return len(self._futures)
 
     def close(self, wait: bool = True) -> None:
+        if not wait:
+            # Interrupted: do not sit out the running batches; their results would be dropped anyway.
+            for process in list(getattr(self._pool, "_processes", {}).values()):
+                process.terminate()
         self._pool.shutdown(wait=wait, cancel_futures=True)
 
 

@@ -1,0 +1,31 @@
+"""Shared pytest configuration.
+
+Tests marked ``@pytest.mark.slow`` (long statistical checks) are skipped
+unless pytest is run with ``--slow``.
+"""
+
+from __future__ import annotations
+
+import pytest
+
+
+def pytest_addoption(parser: pytest.Parser) -> None:
+    parser.addoption(
+        "--slow",
+        action="store_true",
+        default=False,
+        help="also run tests marked slow (long statistical checks)",
+    )
+
+
+def pytest_configure(config: pytest.Config) -> None:
+    config.addinivalue_line("markers", "slow: long statistical checks, run with --slow")
+
+
+def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item]) -> None:
+    if config.getoption("--slow"):
+        return
+    skip_slow = pytest.mark.skip(reason="slow test: run with --slow")
+    for item in items:
+        if "slow" in item.keywords:
+            item.add_marker(skip_slow)
