@@ -15,7 +15,7 @@ from codebench.config import Sweep, load_sweep, parse_sweep
 from codebench.engine.executors import Executor, make_executor
 from codebench.engine.progress import Progress
 from codebench.engine.runner import RunPlan, describe, execute
-from codebench.errors import CodebenchError, StoreError
+from codebench.errors import CodebenchError, ConfigError, StoreError, not_allowed
 from codebench.export import results_frame, write_csv
 from codebench.store import Store
 
@@ -83,6 +83,8 @@ def run_sweep(
     folder = Path(out) if out is not None else sweep.output_dir_default
     # Everything that can fail on bad input happens before the folder is touched.
     members = [(describe(point, sweep.seed, sweep.batch_bytes), point.study) for point in sweep.points]
+    if folder.exists() and not folder.is_dir():
+        raise ConfigError(not_allowed("--out", str(folder), "a folder (or a path that does not exist yet)"))
     store_path = folder / STORE_NAME
     if store_path.exists():
         Store(store_path).close()  # refuses a foreign file before anything is created
