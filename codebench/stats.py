@@ -42,7 +42,13 @@ def per_round(total: float, rounds: int) -> float:
 
 
 def total_from_per_round(eps: float, rounds: int) -> float:
-    """Failure probability after ``rounds`` rounds at per-round rate ``eps``."""
+    """Failure probability after ``rounds`` rounds at per-round rate ``eps``.
+
+    >>> round(total_from_per_round(0.001, 100), 10)
+    0.0907165977
+    """
+    if rounds < 1:
+        raise ValueError(f"rounds must be >= 1; got {rounds}")
     if eps >= 0.5:
         return 0.5
     return float(-math.expm1(rounds * math.log1p(-2 * eps)) / 2)
