@@ -380,8 +380,8 @@ def test_si1000_uses_only_cz_h_and_z_basis_reset_measure(code: str, d: int, basi
 @pytest.mark.parametrize("basis", BASES)
 @pytest.mark.parametrize("code,d", [("repetition", 3), ("repetition", 4), ("rotated_surface", 3), ("rotated_surface", 5)])
 def test_circuit_depolarizing_uses_cx(code: str, d: int, basis: str) -> None:
-    # Standard circuit noise is stated for a CNOT-based circuit (Fowler,
-    # Mariantoni, Martinis, Cleland, PRA 86, 032324 (2012)).
+    # Standard circuit noise is stated for a CNOT-based circuit (Fowler
+    # et al., PRA 86, 032324 (2012)).
     names = {inst.name for inst in _ops(noisy(code, d, basis, "circuit_depolarizing", 0.001))}
     allowed = {"CX", "R", "RX", "M", "MX", "H", "DEPOLARIZE1", "DEPOLARIZE2", "X_ERROR", "Z_ERROR"} | ANNOTATIONS
     assert names <= allowed, names - allowed
@@ -429,8 +429,8 @@ def test_layers_hold_one_operation_kind_and_use_each_qubit_once(code: str, d: in
 @pytest.mark.parametrize("basis", BASES)
 @pytest.mark.parametrize("code,d", [("repetition", 3), ("rotated_surface", 3), ("rotated_surface", 5)])
 def test_circuit_depolarizing_noise_placement(code: str, d: int, basis: str) -> None:
-    # Standard depolarizing circuit noise (Fowler, Mariantoni, Martinis,
-    # Cleland, PRA 86, 032324 (2012), Sec. "error model"): every qubit of every
+    # Standard depolarizing circuit noise (Fowler et al.,
+    # PRA 86, 032324 (2012), Sec. "error model"): every qubit of every
     # layer gets exactly one channel of strength p: DEPOLARIZE2 after a
     # two-qubit gate, DEPOLARIZE1 after a one-qubit gate or when idle, a flip
     # after a reset and before a measurement in the basis of the operation.

@@ -74,8 +74,8 @@ def test_wilson_without_shots() -> None:
 
 # ---------------------------------------------------------------------------
 # Per-round conversion: eps = (1 - (1 - 2 P_L)^(1/r)) / 2 and its inverse
-# P_L(r) = (1 - (1 - 2 eps)^r) / 2 (Google Quantum AI, Nature 614, 676 (2023);
-# Nature 638, 920 (2025)). Worked values as listed in the project's check values.
+# P_L(r) = (1 - (1 - 2 eps)^r) / 2 (Acharya et al., Nature 614, 676 (2023);
+# Acharya et al., Nature 638, 920 (2025)). Worked values as listed in the project's check values.
 
 
 def test_per_round_published_values() -> None:

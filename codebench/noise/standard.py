@@ -67,7 +67,7 @@ class CircuitDepolarizing(NoiseModel):
     ``DEPOLARIZE1(p)`` after one-qubit gates and on every qubit idle in a
     layer; ``DEPOLARIZE2(p)`` after two-qubit gates; a flip with probability
     p after resets and before measurements (in the basis of the operation).
-    (Fowler, Mariantoni, Martinis, Cleland, PRA 86, 032324 (2012); Stephens,
+    (Fowler et al., PRA 86, 032324 (2012); Stephens,
     PRA 89, 022321 (2014).)
     """
 
