@@ -14,7 +14,7 @@ import pandas as pd
 from codebench.config import Sweep, load_sweep, parse_sweep
 from codebench.engine.executors import Executor, make_executor
 from codebench.engine.progress import Progress
-from codebench.engine.runner import RunPlan, describe, execute
+from codebench.engine.runner import RunPlan, StopSignals, describe, execute
 from codebench.errors import CodebenchError, ConfigError, StoreError, not_allowed
 from codebench.export import results_frame, write_csv
 from codebench.store import Store
@@ -79,7 +79,12 @@ def run_sweep(
     >>> int(frame.loc[0, "shots"])
     2000
     """
-    sweep = as_sweep(config)
+    with StopSignals():
+        return _run(as_sweep(config), out, workers, executor, progress)
+
+
+def _run(sweep: Sweep, out: str | Path | None, workers: int | None, executor: Executor | None,
+         progress: bool) -> pd.DataFrame:
     folder = Path(out) if out is not None else sweep.output_dir_default
     # Everything that can fail on bad input happens before the folder is touched.
     members = [(describe(point, sweep.seed, sweep.batch_bytes), point.study) for point in sweep.points]

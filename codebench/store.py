@@ -116,8 +116,11 @@ class Store:
         """Record the points of this run (grid order) and its stopping rule, in one transaction."""
         with self._transaction():
             for stored, _ in members:
+                # The batch cap follows the latest run's batch_bytes; batches cut to another
+                # schedule stay stored but stop matching it (see engine/tally.py).
                 self._db.execute(
-                    "INSERT OR IGNORE INTO points VALUES (?, ?, ?, ?, ?)",
+                    "INSERT INTO points VALUES (?, ?, ?, ?, ?) "
+                    "ON CONFLICT(key) DO UPDATE SET batch_cap = excluded.batch_cap",
                     (stored.key, json.dumps(stored.point.params(), sort_keys=True), stored.qubits,
                      stored.detectors, stored.batch_cap),
                 )

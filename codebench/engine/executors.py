@@ -67,6 +67,10 @@ class InProcessExecutor(Executor):
         return len(self._queue)
 
 
+def _ready() -> bool:
+    return True
+
+
 def _ignore_interrupts() -> None:
     """Workers leave Ctrl-C to the coordinator, which stops them itself."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
@@ -85,6 +89,10 @@ class LocalExecutor(Executor):
             context.set_forkserver_preload(["codebench.engine.worker"])
         self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_ignore_interrupts)
         self._futures: set[Future[BatchResult]] = set()
+        # Start every worker now: an interrupt while the pool is still spawning
+        # processes would otherwise leave multiprocessing half set up.
+        for future in [self._pool.submit(_ready) for _ in range(self.workers)]:
+            future.result()
 
     @property
     def capacity(self) -> int:

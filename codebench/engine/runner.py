@@ -103,7 +103,7 @@ class RunPlan:
     members: list[tuple[StoredPoint, str]]
 
 
-class _StopSignals:
+class StopSignals:
     """Turn SIGTERM into :class:`Interrupted` while a run is active (SIGINT already raises)."""
 
     def __enter__(self) -> None:
@@ -123,7 +123,10 @@ class _StopSignals:
 
 
 def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress | None) -> list[PointRun]:
-    """Run every point of ``plan`` to its stopping rule, committing each batch."""
+    """Run every point of ``plan`` to its stopping rule, committing each batch.
+
+    Call it inside :class:`StopSignals` so that SIGTERM stops it cleanly.
+    """
     stored = store.all_batches()
     runs: list[PointRun] = []
     for member, _ in plan.members:
@@ -134,19 +137,18 @@ def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress 
     by_key = {run.stored.key: run for run in runs}
     interrupted = False
     try:
-        with _StopSignals():
-            while not all(run.tally.finished for run in runs):
-                _fill(runs, plan.stopping, executor)
-                for result in executor.completed(timeout=0.5):
-                    run = by_key[result.point_key]
-                    run.in_flight.discard(result.batch_index)
-                    store.add_batch(result)
-                    run.batches[result.batch_index] = result
-                    run.refresh(plan.stopping)
-                    if progress is not None:
-                        progress.record(result.shots, result.failures)
+        while not all(run.tally.finished for run in runs):
+            _fill(runs, plan.stopping, executor)
+            for result in executor.completed(timeout=0.5):
+                run = by_key[result.point_key]
+                run.in_flight.discard(result.batch_index)
+                store.add_batch(result)
+                run.batches[result.batch_index] = result
+                run.refresh(plan.stopping)
                 if progress is not None:
-                    progress.update([r.status() for r in runs])
+                    progress.record(result.shots, result.failures)
+            if progress is not None:
+                progress.update([r.status() for r in runs])
     except (KeyboardInterrupt, Interrupted):
         interrupted = True
         raise Interrupted("interrupted") from None

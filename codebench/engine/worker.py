@@ -102,15 +102,39 @@ def run_batch(task: BatchTask) -> BatchResult:
     point = compiled(task.point_key, task.params)
     start = time.perf_counter()
     sampler = point.circuit.compile_detector_sampler(seed=task.seed)
-    detectors, observables = sampler.sample(task.shots, separate_observables=True, bit_packed=True)
-    decode_start = time.perf_counter()
-    predicted = point.decoder.decode_batch(detectors, bit_packed=True)
-    end = time.perf_counter()
+    failures = 0
+    decode_seconds = 0.0
+    # One seeded sampler per batch, drawn in chunks: stim reuses its buffers from chunk
+    # to chunk (a fresh large allocation per call was measurably slower), and a batch's
+    # memory stays bounded by the chunk, not the batch.
+    for chunk in _chunks(task.shots, _chunk_shots(point.num_detectors)):
+        detectors, observables = sampler.sample(chunk, separate_observables=True, bit_packed=True)
+        decode_start = time.perf_counter()
+        predicted = point.decoder.decode_batch(detectors, bit_packed=True)
+        decode_seconds += time.perf_counter() - decode_start
+        failures += count_failures(predicted, observables)
     return BatchResult(
         point_key=task.point_key,
         batch_index=task.batch_index,
         shots=task.shots,
-        failures=count_failures(predicted, observables),
-        seconds=end - start,
-        decode_seconds=end - decode_start,
+        failures=failures,
+        seconds=time.perf_counter() - start,
+        decode_seconds=decode_seconds,
     )
+
+
+#: Shots drawn from the sampler at once, at most (fewer for very large circuits).
+CHUNK_SHOTS = 16384
+#: Bit-packed detection events one chunk may hold.
+CHUNK_BYTES = 8 * 1024 * 1024
+
+
+def _chunk_shots(num_detectors: int) -> int:
+    per_shot = max(1, (num_detectors + 7) // 8)
+    return max(256, min(CHUNK_SHOTS, CHUNK_BYTES // per_shot))
+
+
+def _chunks(total: int, size: int) -> list[int]:
+    """Split ``total`` shots into chunks of ``size`` (the last one shorter)."""
+    full, rest = divmod(total, size)
+    return [size] * full + ([rest] if rest else [])
