@@ -108,18 +108,18 @@ def _run(sweep: Sweep, out: str | Path | None, workers: int | None, executor: Ex
     return frame
 
 
-def load_results(folder: str | Path) -> pd.DataFrame:
-    """The results table of a sweep folder, rebuilt from its store."""
+def load_results(folder: str | Path, interval: str = "wilson") -> pd.DataFrame:
+    """The results table of a sweep folder, rebuilt from its store (95% intervals by ``interval``)."""
     path = Path(folder) / STORE_NAME
     if not path.exists():
         raise StoreError(f"no results store at '{path}' (run `codebench sweep` first).")
     with Store(path, create=False) as store:
-        return results_frame(store)
+        return results_frame(store, interval)
 
 
-def export_csv(folder: str | Path, csv_path: str | Path | None = None) -> Path:
+def export_csv(folder: str | Path, csv_path: str | Path | None = None, interval: str = "wilson") -> Path:
     """Rewrite the results CSV of ``folder`` from its store."""
-    frame = load_results(folder)
+    frame = load_results(folder, interval)
     return write_csv(frame, Path(csv_path) if csv_path is not None else Path(folder) / CSV_NAME)
 
 

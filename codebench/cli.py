@@ -12,6 +12,7 @@ from pathlib import Path
 from typing import Callable, NoReturn, Sequence
 
 from codebench.errors import CodebenchError, Interrupted, not_allowed
+from codebench.stats import INTERVALS
 
 EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
@@ -52,7 +53,7 @@ def cmd_sweep(args: argparse.Namespace) -> int:
 def cmd_export(args: argparse.Namespace) -> int:
     from codebench.api import export_csv
 
-    path = export_csv(args.dir, args.csv)
+    path = export_csv(args.dir, args.csv, args.interval)
     print(f"wrote {path}")
     return EXIT_OK
 
@@ -82,6 +83,8 @@ def build_parser() -> argparse.ArgumentParser:
     export = sub.add_parser("export", help="rewrite results.csv from the store")
     export.add_argument("dir", help="sweep output folder")
     export.add_argument("--csv", help="where to write (default: DIR/results.csv)")
+    export.add_argument("--interval", choices=sorted(INTERVALS), default="wilson",
+                        help="95%% binomial interval (default: wilson)")
     export.set_defaults(func=cmd_export)
 
     circuit = sub.add_parser("circuit", help="print one point's noisy stim circuit")

@@ -12,7 +12,7 @@ import pandas as pd
 
 from codebench.engine.stopping import batch_sizes
 from codebench.engine.tally import tally, usable_batches
-from codebench.stats import per_round, wilson_interval
+from codebench.stats import binomial_interval, per_round
 from codebench.store import Store
 
 #: The fixed columns, in order; more follow them.
@@ -21,17 +21,19 @@ COLUMNS = [
     "shots", "failures", "seconds", "failure_rate", "failure_rate_low", "failure_rate_high",
     "per_round_rate", "per_round_low", "per_round_high", "qubits", "detectors",
 ]
-EXTRA_COLUMNS = ["decode_seconds", "batches", "complete", "noise_options", "decoder_options", "key"]
+EXTRA_COLUMNS = ["decode_seconds", "batches", "complete", "interval", "noise_options", "decoder_options", "key"]
 
 
 def _per_round(total: float, rounds: int) -> float:
     return float("nan") if math.isnan(total) else per_round(total, rounds)
 
 
-def results_frame(store: Store) -> pd.DataFrame:
+def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
     """The results table of the store's latest run.
 
-    ``failure_rate`` is failures / shots with a 95% Wilson interval; the
+    ``failure_rate`` is failures / shots with a 95% interval by ``interval``
+    (``wilson``, ``jeffreys`` or ``clopper_pearson``; named in the
+    ``interval`` column); the
     per-round columns map the rate and both interval ends through
     eps = (1 - (1 - 2 P)^(1/rounds)) / 2, which is monotone, so the interval
     carries over exactly.
@@ -44,7 +46,7 @@ def results_frame(store: Store) -> pd.DataFrame:
         sizes = batch_sizes(stopping.shot_budget, member.batch_cap)
         t = tally(sizes, usable_batches(sizes, stored.get(member.key, [])), stopping)
         rate = t.failures / t.shots if t.shots else float("nan")
-        low, high = wilson_interval(t.failures, t.shots) if t.shots else (float("nan"), float("nan"))
+        low, high = binomial_interval(t.failures, t.shots, interval) if t.shots else (float("nan"), float("nan"))
         rows.append({
             "study": study, "code": point.code, "distance": point.distance, "rounds": point.rounds,
             "basis": point.basis, "noise": point.noise, "p": point.p, "decoder": point.decoder,
@@ -53,7 +55,7 @@ def results_frame(store: Store) -> pd.DataFrame:
             "per_round_rate": _per_round(rate, point.rounds), "per_round_low": _per_round(low, point.rounds),
             "per_round_high": _per_round(high, point.rounds),
             "qubits": member.qubits, "detectors": member.detectors,
-            "decode_seconds": t.decode_seconds, "batches": t.batches, "complete": t.finished,
+            "decode_seconds": t.decode_seconds, "batches": t.batches, "complete": t.finished, "interval": interval,
             "noise_options": json.dumps(dict(point.noise_options), sort_keys=True),
             "decoder_options": json.dumps(dict(point.decoder_options), sort_keys=True),
             "key": member.key,

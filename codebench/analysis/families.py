@@ -1,0 +1,83 @@
+"""Families of points: the curves a fit runs over.
+
+A family shares (code, basis, noise model and options, decoder, rounds
+rule). The rounds rule is ``"d"``, ``"2d"``, ... when every point runs
+rounds = k d, else the fixed number of rounds (``"1"``, ``"5"``, ...). A row
+can belong to a multiple-of-d family and to a fixed-rounds family at once
+(rounds = 3 at d = 3 is both); each family is a view of the results table.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+IDENTITY = ("code", "basis", "noise", "noise_options", "decoder")
+
+
+@dataclass(frozen=True)
+class Family:
+    """Points of one curve family, sorted by distance then p."""
+
+    code: str
+    basis: str
+    noise: str
+    noise_options: str
+    decoder: str
+    rounds_rule: str
+    frame: pd.DataFrame
+
+    @property
+    def distances(self) -> list[int]:
+        return sorted(int(d) for d in self.frame["distance"].unique())
+
+    @property
+    def rates(self) -> list[float]:
+        """The sampled values of ``p`` (the noise model's base rate or scale factor)."""
+        return sorted(float(p) for p in self.frame["p"].unique())
+
+    def identity(self) -> dict[str, Any]:
+        """The keys every result record of this family starts with."""
+        return {"code": self.code, "basis": self.basis, "noise": self.noise, "decoder": self.decoder,
+                "rounds": self.rounds_rule}
+
+    def describe(self) -> str:
+        return f"{self.code} {self.basis} {self.noise} {self.decoder} rounds={self.rounds_rule}"
+
+    def at_distance(self, distance: int) -> pd.DataFrame:
+        return self.frame[self.frame["distance"] == distance].sort_values("p")
+
+    def at_rate(self, p: float) -> pd.DataFrame:
+        return self.frame[np.isclose(self.frame["p"], p, rtol=1e-9, atol=0)].sort_values("distance")
+
+
+def _usable(frame: pd.DataFrame) -> pd.DataFrame:
+    """Points with at least one shot."""
+    return frame[frame["shots"] > 0]
+
+
+def group_families(frame: pd.DataFrame) -> list[Family]:
+    """Every family with at least two distances, in a stable order."""
+    frame = _usable(frame)
+    if "noise_options" not in frame.columns:
+        frame = frame.assign(noise_options="{}")
+    families: list[Family] = []
+    for ident, group in frame.groupby(list(IDENTITY), sort=True):
+        code, basis, noise, options, decoder = (str(x) for x in ident)
+        ratio = group["rounds"] / group["distance"]
+        for k in sorted({int(r) for r in ratio if float(r).is_integer()}):
+            part = group[ratio == k]
+            if part["distance"].nunique() >= 2:
+                rule = "d" if k == 1 else f"{k}d"
+                families.append(Family(code, basis, noise, options, decoder, rule, _sorted(part)))
+        for rounds, part in group.groupby("rounds", sort=True):
+            if part["distance"].nunique() >= 2:
+                families.append(Family(code, basis, noise, options, decoder, str(int(rounds)), _sorted(part)))
+    return families
+
+
+def _sorted(frame: pd.DataFrame) -> pd.DataFrame:
+    return frame.sort_values(["distance", "p"]).reset_index(drop=True)
