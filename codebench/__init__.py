@@ -7,10 +7,23 @@ binomial intervals. See README.md for the command line.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    import pandas as pd
+
 from codebench.api import export_csv, load_results, run_sweep
 from codebench.errors import CodebenchError, ConfigError, DecoderError, DeviceFileError, StoreError
 
 __version__ = "0.1.0"
+
+
+def analyze(frame: pd.DataFrame, **options: Any) -> dict[str, Any]:
+    """Fit thresholds, pseudo-thresholds, Lambda, scaling law and projections; see :mod:`codebench.analysis`."""
+    from codebench.analysis import analyze as _analyze
+
+    return _analyze(frame, **options)
+
 
 __all__ = [
     "CodebenchError",
@@ -19,6 +32,7 @@ __all__ = [
     "DeviceFileError",
     "StoreError",
     "__version__",
+    "analyze",
     "export_csv",
     "load_results",
     "run_sweep",

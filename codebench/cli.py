@@ -58,6 +58,55 @@ def cmd_export(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _targets(text: str) -> list[float]:
+    try:
+        values = [float(part) for part in text.split(",") if part.strip()]
+    except ValueError:
+        values = []
+    if not values or not all(0 < v < 0.5 for v in values):
+        raise argparse.ArgumentTypeError(not_allowed("--targets", text, "comma-separated rates in (0, 0.5)"))
+    return values
+
+
+def _analysis(args: argparse.Namespace) -> tuple[object, dict[str, object]]:
+    from codebench.analysis import analyze
+    from codebench.api import load_results
+
+    frame = load_results(args.dir, args.interval)
+    return frame, analyze(frame, targets=args.targets, bootstrap=args.bootstrap, seed=args.seed)
+
+
+def cmd_analyze(args: argparse.Namespace) -> int:
+    import json
+
+    from codebench.analysis.render import analysis_table
+
+    _, result = _analysis(args)
+    if args.format == "json":
+        print(json.dumps(result, indent=2, allow_nan=False))
+    else:
+        print(analysis_table(result))
+    return EXIT_OK
+
+
+def cmd_figures(args: argparse.Namespace) -> int:
+    from codebench.figures import write_figures
+
+    frame, result = _analysis(args)
+    paths = write_figures(Path(args.dir), frame, result)  # type: ignore[arg-type]
+    print(f"wrote {len(paths)} files into {Path(args.dir) / 'figures'}")
+    return EXIT_OK
+
+
+def cmd_report(args: argparse.Namespace) -> int:
+    from codebench.report import write_report
+
+    frame, result = _analysis(args)
+    path = write_report(Path(args.dir), frame, result)  # type: ignore[arg-type]
+    print(f"wrote {path} and {path.parent / 'summary.md'}")
+    return EXIT_OK
+
+
 def cmd_circuit(args: argparse.Namespace) -> int:
     from codebench.pointspec import point_from_args, point_list
 
@@ -86,6 +135,24 @@ def build_parser() -> argparse.ArgumentParser:
     export.add_argument("--interval", choices=sorted(INTERVALS), default="wilson",
                         help="95%% binomial interval (default: wilson)")
     export.set_defaults(func=cmd_export)
+
+    for verb, func, text in (
+        ("analyze", cmd_analyze, "fit thresholds, pseudo-thresholds, Lambda and projections"),
+        ("figures", cmd_figures, "write figures (PNG and SVG) into DIR/figures/"),
+        ("report", cmd_report, "write a design-review bundle into DIR/report/"),
+    ):
+        verb_parser = sub.add_parser(verb, help=text)
+        verb_parser.add_argument("dir", help="sweep output folder")
+        if verb == "analyze":
+            verb_parser.add_argument("--format", choices=["table", "json"], default="table")
+        verb_parser.add_argument("--targets", type=_targets, default=[1e-6, 1e-9, 1e-12],
+                                 help="target per-round rates for projections (default: 1e-6,1e-9,1e-12)")
+        verb_parser.add_argument("--interval", choices=sorted(INTERVALS), default="wilson",
+                                 help="95%% binomial interval of the tables (default: wilson)")
+        verb_parser.add_argument("--bootstrap", type=_positive_int("--bootstrap"), default=200,
+                                 help="bootstrap resamples for crossing intervals (default: 200)")
+        verb_parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default: 0)")
+        verb_parser.set_defaults(func=func)
 
     circuit = sub.add_parser("circuit", help="print one point's noisy stim circuit")
     circuit.add_argument("config", nargs="?", help="sweep file; pick the point with --point")

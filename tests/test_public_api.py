@@ -11,7 +11,7 @@ from codebench.noise import NOISE_MODELS
 def test_public_names() -> None:
     assert sorted(codebench.__all__) == sorted([
         "CodebenchError", "ConfigError", "DecoderError", "DeviceFileError", "StoreError",
-        "__version__", "export_csv", "load_results", "run_sweep",
+        "__version__", "analyze", "export_csv", "load_results", "run_sweep",
     ])
 
 
