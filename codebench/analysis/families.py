@@ -75,7 +75,7 @@ def group_families(frame: pd.DataFrame) -> list[Family]:
                 families.append(Family(code, basis, noise, options, decoder, rule, _sorted(part)))
         for rounds, part in group.groupby("rounds", sort=True):
             if part["distance"].nunique() >= 2:
-                families.append(Family(code, basis, noise, options, decoder, str(int(rounds)), _sorted(part)))
+                families.append(Family(code, basis, noise, options, decoder, str(rounds), _sorted(part)))
     return families
 
 

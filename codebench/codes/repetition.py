@@ -17,6 +17,10 @@ class Repetition(CodeFamily):
     def distance_problem(self, distance: int) -> str | None:
         return None if distance >= 2 else "an integer >= 2"
 
+    def qubit_count(self, distance: int) -> int:
+        """d data plus d - 1 measure qubits."""
+        return 2 * distance - 1
+
     def layout(self, distance: int, basis: Basis) -> Layout:
         coords: dict[int, tuple[float, float]] = {}
         roles: dict[int, Role] = {}

@@ -27,6 +27,10 @@ class RotatedSurface(CodeFamily):
     def distance_problem(self, distance: int) -> str | None:
         return None if distance >= 3 and distance % 2 == 1 else "an odd integer >= 3"
 
+    def qubit_count(self, distance: int) -> int:
+        """d^2 data plus d^2 - 1 measure qubits (closed form; projections ask for large d)."""
+        return 2 * distance * distance - 1
+
     def layout(self, distance: int, basis: Basis) -> Layout:
         d = distance
         index: dict[tuple[int, int], int] = {}
