@@ -149,8 +149,8 @@ def build_parser() -> argparse.ArgumentParser:
                                  help="target per-round rates for projections (default: 1e-6,1e-9,1e-12)")
         verb_parser.add_argument("--interval", choices=sorted(INTERVALS), default="wilson",
                                  help="95%% binomial interval of the tables (default: wilson)")
-        verb_parser.add_argument("--bootstrap", type=_positive_int("--bootstrap"), default=200,
-                                 help="bootstrap resamples for crossing intervals (default: 200)")
+        verb_parser.add_argument("--bootstrap", type=_positive_int("--bootstrap"), default=1000,
+                                 help="bootstrap resamples for crossing intervals (default: 1000)")
         verb_parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default: 0)")
         verb_parser.set_defaults(func=func)
 

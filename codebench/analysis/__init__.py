@@ -34,7 +34,7 @@ def analyze(
     frame: pd.DataFrame,
     *,
     targets: Sequence[float] = DEFAULT_TARGETS,
-    bootstrap: int = 200,
+    bootstrap: int = 1000,
     seed: int = 0,
 ) -> dict[str, Any]:
     """Run every fit on every family of ``frame`` (a results table).
