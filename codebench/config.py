@@ -44,6 +44,8 @@ from codebench.engine.stopping import DEFAULT_BATCH_BYTES, Stopping
 from codebench.errors import ConfigError, not_allowed
 from codebench.noise import NOISE_MODELS
 from codebench.noise.base import NoiseModel
+from codebench.noise.calibration import Device, load_device
+from codebench.noise.device import DeviceNoise
 
 __all__ = ["Sweep", "load_sweep", "parse_rounds", "parse_sweep"]
 
@@ -70,6 +72,8 @@ _STUDY_KEYS = (
     "decoders",
     "label",
     "noise_options",
+    "device",
+    "scale",
 )
 _ROUNDS_ALLOWED = (
     "a positive integer, a non-empty list of positive integers, "
@@ -252,6 +256,8 @@ def parse_rounds(spec: object, distance: int, path: str) -> list[int]:
 
 
 def _parse(data: object, source: str, text: str) -> Sweep:
+    # Device files named in a sweep file are found relative to it.
+    base_dir = Path(source).parent if not source.startswith("<") else Path.cwd()
     if not isinstance(data, dict):
         raise _Problem(not_allowed("the sweep", data, "a table"))
     _check_keys(data, "", _TOP_KEYS)
@@ -270,7 +276,7 @@ def _parse(data: object, source: str, text: str) -> Sweep:
     seen: set[Point] = set()
     labels: set[str] = set()
     for index, study in enumerate(studies):
-        label, study_points = _parse_study(study, index)
+        label, study_points = _parse_study(study, index, base_dir)
         if label in labels:
             raise _Problem(not_allowed(f"study[{index}].label", label, "a label no earlier study uses"))
         labels.add(label)
@@ -318,7 +324,7 @@ def _parse_engine(table: object) -> int:
     return int(value)
 
 
-def _parse_study(study: object, index: int) -> tuple[str, list[Point]]:
+def _parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[Point]]:
     at = f"study[{index}]"
     if not isinstance(study, dict):
         raise _Problem(not_allowed(at, study, "a table ([[study]])"))
@@ -341,14 +347,29 @@ def _parse_study(study: object, index: int) -> tuple[str, list[Point]]:
         raise _Problem(not_allowed(f"{at}.noise", noise, noise_allowed))
     model = NOISE_MODELS[noise]
 
-    rates = _parse_p(_require(study, "p", _P_ALLOWED, at), model, at)
+    if noise == DeviceNoise.name:
+        for key in ("p", "noise_options"):
+            if key in study:
+                raise _Problem(f"{at}.{key} is not used with noise = 'device': the device file sets the error "
+                               "rates; use scale = [...] for what-if factors.")
+        device = _load_device(_require(study, "device", "the path of a device file", at), f"{at}.device", base_dir)
+        rates = _parse_p(study.get("scale", [1.0]), model, at, key="scale")
+        device_options: tuple[tuple[str, str], ...] = (("device", device.canonical_json()),)
+    else:
+        for key in ("device", "scale"):
+            if key in study:
+                raise _Problem(f"{at}.{key} is only used with noise = 'device'; got noise = {noise!r}.")
+        rates = _parse_p(_require(study, "p", _P_ALLOWED, at), model, at)
     decoders = _parse_decoders(
         _require(study, "decoders", f"a non-empty list of names from {_names(DECODERS)}", at), at
     )
     label = study.get("label", str(index))
     if not isinstance(label, str) or not label:
         raise _Problem(not_allowed(f"{at}.label", label, "a non-empty string"))
-    options = _parse_noise_options(study.get("noise_options", {}), model, at)
+    if noise == DeviceNoise.name:
+        options = device_options
+    else:
+        options = _parse_noise_options(study.get("noise_options", {}), model, at)
 
     points = [
         Point(
@@ -403,8 +424,17 @@ def _parse_bases(value: object, family: CodeFamily, at: str) -> list[Basis]:
     return bases
 
 
-def _parse_p(value: object, model: type[NoiseModel], at: str) -> list[float]:
-    path = f"{at}.p"
+def _load_device(value: object, path: str, base_dir: Path) -> Device:
+    if not isinstance(value, str) or not value:
+        raise _Problem(not_allowed(path, value, "the path of a device file (TOML or JSON)"))
+    file = Path(value) if Path(value).is_absolute() else base_dir / value
+    if not file.is_file():
+        raise _Problem(not_allowed(path, value, f"an existing device file ({file} does not exist)"))
+    return load_device(file)
+
+
+def _parse_p(value: object, model: type[NoiseModel], at: str, key: str = "p") -> list[float]:
+    path = f"{at}.{key}"
     in_range = f"a number in [0, {model.p_max:g}] for {model.name}"
     if isinstance(value, dict):
         _check_keys(value, path, ("geomspace",))

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from codebench.noise.base import NoiseModel
+from codebench.noise.device import DeviceNoise
 from codebench.noise.standard import SI1000, CircuitDepolarizing, CodeCapacity, Phenomenological
 
 NOISE_MODELS: dict[str, type[NoiseModel]] = {}
@@ -18,7 +19,7 @@ def get_noise_model(name: str) -> type[NoiseModel]:
     return NOISE_MODELS[name]
 
 
-for _model in (CodeCapacity, Phenomenological, CircuitDepolarizing, SI1000):
+for _model in (CodeCapacity, Phenomenological, CircuitDepolarizing, SI1000, DeviceNoise):
     register(_model)
 
 __all__ = ["NoiseModel", "NOISE_MODELS", "get_noise_model", "register"]

@@ -43,9 +43,17 @@ class NoiseModel(ABC):
         """The noisy stim circuit for ``ideal``."""
         return render(ideal, self.layer_noise)
 
+    def circuit_gate_set(self) -> GateSet:
+        """The gate set circuits are compiled to (a device may choose its own)."""
+        return self.gate_set
+
+    def ideal_circuit(self, layout: Layout, rounds: int, basis: Basis) -> IdealCircuit:
+        """The noiseless layered memory experiment in this model's gate set."""
+        return build_memory(layout, rounds, basis, self.circuit_gate_set())
+
     def memory_circuit(self, layout: Layout, rounds: int, basis: Basis) -> stim.Circuit:
         """Build the ideal memory experiment in this model's gate set and decorate it."""
-        return self.decorate(build_memory(layout, rounds, basis, self.gate_set))
+        return self.decorate(self.ideal_circuit(layout, rounds, basis))
 
 
 def idle_qubits(layer: Layer, ideal: IdealCircuit) -> list[int]:
