@@ -12,6 +12,7 @@ import pandas as pd
 
 from codebench.engine.stopping import batch_sizes
 from codebench.engine.tally import tally, usable_batches
+from codebench.noise.calibration import device_from_json
 from codebench.stats import binomial_interval, per_round
 from codebench.store import Store
 
@@ -22,6 +23,14 @@ COLUMNS = [
     "per_round_rate", "per_round_low", "per_round_high", "qubits", "detectors",
 ]
 EXTRA_COLUMNS = ["decode_seconds", "batches", "complete", "interval", "noise_options", "decoder_options", "key"]
+
+
+def _options_column(options: dict[str, str]) -> str:
+    """Noise options as JSON; a device is named by its name and content digest, not its whole file."""
+    if "device" in options:
+        device = device_from_json(options["device"])
+        options = {**options, "device": f"{device.name} [{device.digest()}]"}
+    return json.dumps(options, sort_keys=True)
 
 
 def _per_round(total: float, rounds: int) -> float:
@@ -56,7 +65,7 @@ def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
             "per_round_high": _per_round(high, point.rounds),
             "qubits": member.qubits, "detectors": member.detectors,
             "decode_seconds": t.decode_seconds, "batches": t.batches, "complete": t.finished, "interval": interval,
-            "noise_options": json.dumps(dict(point.noise_options), sort_keys=True),
+            "noise_options": _options_column(dict(point.noise_options)),
             "decoder_options": json.dumps(dict(point.decoder_options), sort_keys=True),
             "key": member.key,
         })
