@@ -207,9 +207,27 @@ def _safe(text: str) -> str:
     return re.sub(r"[^A-Za-z0-9_.+-]+", "-", text).strip("-")
 
 
+_DEVICE_LABEL = re.compile(r"^(?P<name>.*?)\s*\[(?P<digest>[0-9a-f]+)\]$")
+
+
+def _device_parts(options: dict[str, str]) -> tuple[str, str] | None:
+    """(name, digest) of the device a family runs on, from its ``noise_options`` ("name [digest]")."""
+    label = options.get("device")
+    if label is None:
+        return None
+    match = _DEVICE_LABEL.match(label)
+    return (match.group("name"), match.group("digest")) if match else (label, "")
+
+
 def _family_slug(family: Family, with_decoder: bool = True) -> str:
     parts = [family.code, family.basis, family.noise]
-    parts += [f"{key}-{value}" for key, value in _non_default_options(family.noise, family.noise_options).items()]
+    options = _non_default_options(family.noise, family.noise_options)
+    device = _device_parts(options)
+    if device is not None:
+        name, digest = device
+        options.pop("device")
+        parts.append(_safe(name)[:32].strip("-") + (f"-{digest[:8]}" if digest else ""))
+    parts += [f"{key}-{value}" for key, value in options.items()]
     if with_decoder:
         parts.append(family.decoder)
     parts.append(f"r{family.rounds_rule}")
@@ -219,6 +237,10 @@ def _family_slug(family: Family, with_decoder: bool = True) -> str:
 def _family_title(family: Family, with_decoder: bool = True) -> str:
     noise = family.noise
     options = _non_default_options(family.noise, family.noise_options)
+    device = _device_parts(options)
+    if device is not None:
+        options.pop("device")
+        noise = f"device {device[0]}"
     if options:
         noise += " (" + ", ".join(f"{key}={value}" for key, value in options.items()) + ")"
     parts = [family.code, f"{family.basis} basis", noise]
@@ -296,10 +318,30 @@ def _new_figure() -> tuple[Figure, Axes]:
     return fig, ax
 
 
+#: Characters of the family line that fit above the axes of a 7-inch figure.
+_SUBLINE_CHARS = 66
+
+
+def _wrap_family(text: str) -> str:
+    """Break a long " · "-separated family line into two lines, at the separator nearest the middle."""
+    if len(text) <= _SUBLINE_CHARS:
+        return text
+    parts = text.split(" \u00b7 ")
+    best, split = None, 1
+    for i in range(1, len(parts)):
+        first = " \u00b7 ".join(parts[:i])
+        score = max(len(first), len(text) - len(first))
+        if best is None or score < best:
+            best, split = score, i
+    return " \u00b7 ".join(parts[:split]) + "\n" + " \u00b7 ".join(parts[split:])
+
+
 def _titles(ax: Axes, headline: str, subline: str) -> None:
     """A bold headline over a muted line naming the family (both left-aligned on the axes)."""
+    subline = _wrap_family(subline)
     ax.set_title(subline, loc="left", fontsize=11.5, fontweight="normal", color=MUTED, pad=8)
-    ax.annotate(headline, xy=(0, 1), xycoords="axes fraction", xytext=(0, 27), textcoords="offset points",
+    lift = 27 + 15 * subline.count("\n")
+    ax.annotate(headline, xy=(0, 1), xycoords="axes fraction", xytext=(0, lift), textcoords="offset points",
                 ha="left", va="bottom", fontsize=14, fontweight="bold", color=INK, annotation_clip=False)
 
 

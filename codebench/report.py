@@ -433,7 +433,8 @@ def _fit_tables(analysis: dict[str, Any]) -> list[Table]:
         else:
             d_text = _with_interval(r.get("distance"), r.get("distance_low"), r.get("distance_high"), _int)
             q_text = _with_interval(r.get("qubits"), r.get("qubits_low"), r.get("qubits_high"), _int)
-        flag: Cell = Badge("extrapolated", "warn") if r.get("extrapolation") else "within sampled d"
+        flag: Cell = (Badge("extrapolated", "warn") if r.get("extrapolation")
+                      else "\u2013" if _finite(r.get("distance")) is None else "within sampled d")
         projections.rows.append([_family_text(r), _g(r.get("p")), _g(r.get("target")), d_text, q_text,
                                  _list(r.get("fitted_distances")), flag])
         projections.row_classes.append("extrapolated" if r.get("extrapolation") else "")
@@ -507,13 +508,17 @@ def _extrapolation_caution(analysis: dict[str, Any]) -> Caution:
     if not flagged:
         return Caution("Extrapolation beyond the sampled distances",
                        "Every projected distance lies within the sampled range.", ok=True)
-    table = Table("extrapolated", "", "", ["family", "p", "target / round", "d needed", "largest fitted d"],
-                  numeric={1, 2, 3, 4})
+    table = Table("extrapolated", "", "", ["family", "values of p", "largest fitted d", "projected d",
+                                           "projections"], numeric={2, 3, 4})
+    by_family: dict[str, list[dict[str, Any]]] = {}
     for r in flagged:
-        fitted = [int(d) for d in r.get("fitted_distances") or []]
-        table.rows.append([_family_text(r), _g(r.get("p")), _g(r.get("target")),
-                           _int(r.get("distance")) if _finite(r.get("distance")) is not None else "not reached",
-                           str(max(fitted)) if fitted else "\u2013"])
+        by_family.setdefault(_family_text(r), []).append(r)
+    for name, rows in by_family.items():
+        fitted = [int(d) for r in rows for d in r.get("fitted_distances") or []]
+        needed = [int(float(r["distance"])) for r in rows if _finite(r.get("distance")) is not None]
+        rates = sorted({float(r["p"]) for r in rows if _finite(r.get("p")) is not None})
+        table.rows.append([name, ", ".join(_g(p) for p in rates), str(max(fitted)) if fitted else "\u2013",
+                           f"{min(needed)} to {max(needed)}" if needed else "\u2013", str(len(rows))])
     text = (f"{len(flagged)} of {len(projections)} projections need distances beyond those sampled. They assume "
             "that \u039b stays what the small distances show and that no new error mechanism (leakage, "
             "correlated or rare large errors) appears at lower rates; measure at least one larger distance "
@@ -599,6 +604,11 @@ figure { margin: 0; border: 1px solid var(--line); border-radius: 8px; padding: 
 figure svg { display: block; width: 100%; height: auto; }
 figcaption { font-size: 13px; color: var(--muted); margin-top: 4px; }
 figcaption a { color: var(--accent); font-weight: 600; text-decoration: none; margin-left: 6px; }
+figcaption .file { color: #8a909b; font-size: 12px; overflow-wrap: anywhere; }
+.split { display: grid; grid-template-columns: minmax(0, 1fr) minmax(0, 1fr); gap: 24px; }
+.split pre { margin: 0; max-height: 560px; overflow: auto; }
+h3.first { margin-top: 0; }
+@media (max-width: 900px) { .split { grid-template-columns: 1fr; } }
 .caution { border-left: 5px solid var(--warn); background: var(--warn-bg); border-radius: 4px;
            padding: 10px 14px; margin: 12px 0; }
 .caution h3 { margin: 0 0 4px; color: #6d4100; }
@@ -637,6 +647,7 @@ def _html_table(table: Table, css: str = "") -> str:
 
 
 _SVG_OPEN = re.compile(r"<svg\b[^>]*>", re.S)
+_METADATA = re.compile(r"\s*<metadata>.*?</metadata>", re.S)
 
 
 def _inline_svg(path: Path, label: str) -> str:
@@ -647,7 +658,7 @@ def _inline_svg(path: Path, label: str) -> str:
         return ""
     opening = re.sub(r'\s(width|height)="[^"]*"', "", match.group(0))
     opening = opening[:-1].rstrip("/") + f' role="img" aria-label="{_esc(label)}">'
-    return opening + text[match.end():].strip()
+    return opening + _METADATA.sub("", text[match.end():]).strip()
 
 
 def _png_link(path: Path) -> str:
@@ -655,17 +666,34 @@ def _png_link(path: Path) -> str:
     return f'<a download="{_esc(path.name)}" href="data:image/png;base64,{data}">PNG</a>'
 
 
+_FIGURE_KINDS = (
+    ("per_round_vs_p", "Logical error per round against p",
+     "One curve per distance; the threshold estimate and the line where the logical error equals the "
+     "physical one."),
+    ("decoders_vs_p", "Decoders compared", "Colour: distance; line style and marker: decoder."),
+    ("lambda_vs_d", "Suppression with distance",
+     "At each p with a \u039b fit: the points, the fit, the targets and the distance each needs."),
+)
+
+
 def _html_figures(report: _Report) -> str:
     if not report.figures:
         return ('<p class="intro">No figures: a figure needs a family of points with at least two distances '
                 "(see the notes).</p>")
-    items = []
-    for fig in report.figures:
-        items.append(
-            f'<figure id="fig-{_esc(fig.stem)}">{_inline_svg(fig.svg, fig.caption)}'
-            f"<figcaption>{_esc(fig.caption)} {_png_link(fig.png)}"
-            f' <span title="file in the figures folder">({_esc(fig.stem)}.png / .svg)</span></figcaption></figure>')
-    return '<div class="figures">' + "".join(items) + "</div>"
+    parts = []
+    known = {kind for kind, _, _ in _FIGURE_KINDS}
+    kinds = list(_FIGURE_KINDS) + [(k, k, "") for k in sorted({f.kind for f in report.figures} - known)]
+    for kind, title, intro in kinds:
+        items = []
+        for fig in (f for f in report.figures if f.kind == kind):
+            items.append(
+                f'<figure id="fig-{_esc(fig.stem)}">{_inline_svg(fig.svg, fig.caption)}'
+                f"<figcaption>{_esc(fig.caption)} {_png_link(fig.png)}"
+                f' <span class="file">{_esc(fig.stem)}.png / .svg</span></figcaption></figure>')
+        if items:
+            parts.append(f'<h3>{_esc(title)}</h3><p class="intro">{_esc(intro)}</p>'
+                         f'<div class="figures">{"".join(items)}</div>')
+    return "".join(parts)
 
 
 def _html_caution(caution: Caution) -> str:
@@ -699,11 +727,12 @@ def _html_page(report: _Report) -> str:
                          f"bootstrap resamples (seed {settings.get('seed')}); "
                          f"confidence {settings.get('confidence')}.")
     sections = [
-        ("run", "What was run", f'<table class="facts">{run_rows}</table><h3>Sweep file</h3>{sweep_text}'),
+        ("run", "What was run", f'<div class="split"><div><table class="facts">{run_rows}</table></div>'
+                                f'<div><h3 class="first">Sweep file</h3>{sweep_text}</div></div>'),
         ("figures", "Figures", _html_figures(report)),
+        ("cautions", "Cautions", cautions),
         ("fits", "Fits", f'<p class="intro">{_esc(settings_text)}</p>{fits}'),
         ("notes", "Notes on the fits", notes_html),
-        ("cautions", "Cautions", cautions),
         ("results", "Results", f'<p class="intro">{_esc(results.intro)}</p>{_html_table(results)}'),
     ]
     nav = "".join(f'<a href="#{key}">{_esc(title)}</a>' for key, title, _ in sections)
@@ -762,7 +791,7 @@ def _markdown(report: _Report) -> str:
     out += ["", "## Figures", ""]
     if report.figures:
         for fig in report.figures:
-            out += [f"![{fig.caption}](../figures/{fig.png.name})", "",
+            out += [f"![{fig.title}](../figures/{fig.png.name})", "",
                     f"{fig.caption} (`{fig.png.name}`, `{fig.svg.name}`)", ""]
     else:
         out += ["_No figures (a figure needs a family of points with at least two distances)._", ""]

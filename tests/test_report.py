@@ -1,0 +1,259 @@
+"""Figures and the report of a real (tiny) sweep: files written, everything embedded, text escaped."""
+
+from __future__ import annotations
+
+import base64
+import importlib.util
+import json
+import re
+from html.parser import HTMLParser
+from importlib import metadata
+from pathlib import Path
+from types import ModuleType
+from typing import Any
+
+import matplotlib
+import pandas as pd
+import pytest
+
+import codebench
+from codebench.analysis import analyze
+import codebench.figures as figures_module
+from codebench.figures import distance_colour, write_figures
+from codebench.report import write_report
+
+ROOT = Path(__file__).resolve().parents[1]
+
+# The fictional Larkspur Quantum Lab's smallest check: a repetition-code memory under circuit-level
+# depolarizing noise around and below its threshold (near p = 0.05 for this noise model), two decoders.
+CONFIG: dict[str, Any] = {
+    "name": "larkspur_tiny",
+    "seed": 8675309,
+    "stopping": {"failure_target": 400, "shot_budget": 8000},
+    "study": [{
+        "label": "rep", "code": "repetition", "distances": [3, 5, 7], "rounds": "d",
+        "noise": "circuit_depolarizing", "p": [0.01, 0.02, 0.03, 0.045, 0.06],
+        "decoders": ["mwpm", "mwpm_correlated"],
+    }],
+}
+
+
+class _Page(HTMLParser):
+    """Counts what the report page embeds."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.svgs = 0
+        self.png_uris: list[str] = []
+        self.external: list[str] = []
+        self.text: list[str] = []
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        values = dict(attrs)
+        if tag == "svg":
+            self.svgs += 1
+        for key in ("href", "src", "xlink:href"):
+            value = values.get(key) or ""
+            if value.startswith("data:image/png;base64,"):
+                self.png_uris.append(value)
+            elif value and not value.startswith(("#", "data:")):
+                self.external.append(value)
+        if tag in ("script", "link", "iframe", "object"):
+            self.external.append(tag)
+
+    def handle_data(self, data: str) -> None:
+        self.text.append(data)
+
+
+def _parse(path: Path) -> _Page:
+    page = _Page()
+    page.feed(path.read_text(encoding="utf-8"))
+    page.close()
+    return page
+
+
+@pytest.fixture(scope="module")
+def sweep(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, pd.DataFrame, dict[str, Any]]:
+    folder = tmp_path_factory.mktemp("larkspur")
+    frame = codebench.run_sweep(CONFIG, out=folder, workers=1, progress=False)
+    analysis = analyze(frame, bootstrap=40, seed=3)
+    return folder, frame, analysis
+
+
+@pytest.fixture(scope="module")
+def report(sweep: tuple[Path, pd.DataFrame, dict[str, Any]]) -> Path:
+    folder, frame, analysis = sweep
+    return write_report(folder, frame, analysis)
+
+
+def test_figures_are_written_as_png_and_svg(sweep: tuple[Path, pd.DataFrame, dict[str, Any]], tmp_path: Path) -> None:
+    _, frame, analysis = sweep
+    before = dict(matplotlib.rcParams)
+    stale = tmp_path / "figures" / "per_round_vs_p__left_from_an_old_run.png"
+    stale.parent.mkdir()
+    stale.write_bytes(b"old")
+    paths = write_figures(tmp_path, frame, analysis)
+    assert dict(matplotlib.rcParams) == before, "figures must not change matplotlib's global settings"
+    source = Path(figures_module.__file__).read_text(encoding="utf-8")
+    assert "import matplotlib.pyplot" not in source and "from matplotlib import pyplot" not in source
+    assert not stale.exists(), "a figure file this run did not write is removed"
+    pngs = sorted(p.stem for p in paths if p.suffix == ".png")
+    svgs = sorted(p.stem for p in paths if p.suffix == ".svg")
+    assert pngs == svgs and pngs
+    on_disk = sorted(p.name for p in (tmp_path / "figures").iterdir())
+    assert on_disk == sorted(p.name for p in paths)
+    for path in paths:
+        assert path.stat().st_size > 1000
+        if path.suffix == ".png":
+            assert path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+        else:
+            assert "<svg" in path.read_text(encoding="utf-8")
+    names = set(pngs)
+    for family in ("repetition_Z_circuit_depolarizing_mwpm_rd", "repetition_Z_circuit_depolarizing_mwpm_correlated_rd"):
+        assert f"per_round_vs_p__{family}" in names
+    assert "decoders_vs_p__repetition_Z_circuit_depolarizing_rd" in names
+    lambdas = [r for r in analysis["lambdas"] if r.get("lambda") is not None and r.get("C") is not None]
+    assert len([n for n in names if n.startswith("lambda_vs_d__")]) == len(lambdas)
+
+
+def test_figures_are_reproducible(sweep: tuple[Path, pd.DataFrame, dict[str, Any]], tmp_path: Path) -> None:
+    """Same inputs, same bytes: no dates and no random ids in the files."""
+    _, frame, analysis = sweep
+    part = frame[frame["decoder"] == "mwpm"]
+    first = write_figures(tmp_path / "a", part, analysis)
+    second = write_figures(tmp_path / "b", part, analysis)
+    assert [p.name for p in first] == [p.name for p in second] and first
+    for a, b in zip(first, second):
+        assert a.read_bytes() == b.read_bytes(), a.name
+
+
+def test_distance_colours_are_fixed_and_distinct() -> None:
+    odd = [distance_colour(d) for d in range(3, 23, 2)]
+    assert len(set(odd)) == len(odd)
+    assert distance_colour(5) == distance_colour(5) and distance_colour(4) not in odd[:3]
+
+
+def test_report_embeds_every_figure_and_says_what_was_run(
+    sweep: tuple[Path, pd.DataFrame, dict[str, Any]], report: Path
+) -> None:
+    folder, frame, _ = sweep
+    assert report == folder / "report" / "index.html"
+    page = _parse(report)
+    figures = folder / "figures"
+    svg_files = sorted(figures.glob("*.svg"))
+    png_files = sorted(figures.glob("*.png"))
+    assert svg_files and len(svg_files) == len(png_files)
+    assert page.svgs == len(svg_files)
+    embedded = {base64.b64decode(uri.split(",", 1)[1]) for uri in page.png_uris}
+    assert len(page.png_uris) == len(png_files)
+    assert all(path.read_bytes() in embedded for path in png_files)
+    assert page.external == [], "the page loads nothing from outside itself"
+    html_text = report.read_text(encoding="utf-8")
+    assert "<?xml" not in html_text and "http://" not in html_text.replace("http://www.w3.org/", "")
+    text = " ".join(page.text)
+    assert str(CONFIG["seed"]) in text and CONFIG["name"] in text
+    for package in ("stim", "pymatching", "numpy"):
+        assert metadata.version(package) in text
+    assert f"{int(frame['shots'].sum()):,}" in text
+    for heading in ("What was run", "Figures", "Cautions", "Thresholds", "Pseudo-thresholds", "Projections",
+                    "Scaling law", "Notes on the fits", "Results", "Finite-size drift", "Extrapolation"):
+        assert heading in text
+
+
+def test_summary_markdown_has_the_tables(sweep: tuple[Path, pd.DataFrame, dict[str, Any]], report: Path) -> None:
+    folder, frame, analysis = sweep
+    summary = (folder / "report" / "summary.md").read_text(encoding="utf-8")
+    assert summary.startswith("# codebench report: larkspur_tiny")
+    assert "| study | code | d |" in summary
+    assert len(re.findall(r"^\| rep \| repetition \|", summary, flags=re.M)) >= len(frame)
+    for title in ("### Thresholds", "### Pseudo-thresholds", "### Error suppression", "### Scaling law",
+                  "### Projections", "## Cautions", "## Notes on the fits"):
+        assert title in summary
+    if analysis["thresholds"]:
+        assert "finite-size scaling" in summary or "| crossing |" in summary
+    for png in (folder / "figures").glob("*.png"):
+        assert f"](../figures/{png.name})" in summary
+    assert f"**seed**: {CONFIG['seed']}" in summary
+
+
+def test_cautions_list_points_with_few_failures(sweep: tuple[Path, pd.DataFrame, dict[str, Any]],
+                                                report: Path) -> None:
+    _, frame, _ = sweep
+    html_text = report.read_text(encoding="utf-8")
+    few = frame[frame["failures"] < 10]
+    if len(few):
+        assert f"{len(few)} point(s) have fewer than 10 failures" in html_text
+    else:
+        assert "every point has at least 10 failures" in html_text
+    assert "every point met its stopping rule" in html_text
+
+
+def test_single_distance_gives_a_report_that_says_the_fit_is_missing(
+    sweep: tuple[Path, pd.DataFrame, dict[str, Any]], tmp_path: Path
+) -> None:
+    _, frame, _ = sweep
+    single = frame[frame["distance"] == 3].reset_index(drop=True)
+    index = write_report(tmp_path, frame=single)  # no store here, analysis computed by the report
+    text = " ".join(_parse(index).text)
+    assert "at least two distances" in text
+    assert "no threshold estimate" in text and "no \u039b fit" in text
+    assert not list((tmp_path / "figures").iterdir())
+    assert _parse(index).svgs == 0
+    assert "not recorded" in text  # no store: seed and sweep text unknown
+    assert (tmp_path / "report" / "summary.md").exists()
+
+
+def test_text_from_data_is_escaped(sweep: tuple[Path, pd.DataFrame, dict[str, Any]], tmp_path: Path) -> None:
+    _, frame, analysis = sweep
+    labelled = frame[frame["decoder"] == "mwpm"].assign(study="<b>bold</b> & co")
+    notes = dict(analysis, notes=["<script>alert(1)</script> note"])
+    index = write_report(tmp_path, frame=labelled, analysis=notes)
+    html_text = index.read_text(encoding="utf-8")
+    assert "<b>bold</b>" not in html_text and "<script>" not in html_text
+    assert "&lt;b&gt;bold&lt;/b&gt; &amp; co" in html_text
+    assert "&lt;script&gt;alert(1)&lt;/script&gt; note" in html_text
+    assert "<b>bold</b>" not in (tmp_path / "report" / "summary.md").read_text(encoding="utf-8")
+
+
+def test_report_loads_folder_when_given_nothing(sweep: tuple[Path, pd.DataFrame, dict[str, Any]],
+                                               tmp_path: Path) -> None:
+    folder, _, _ = sweep
+    index = write_report(folder)
+    text = " ".join(_parse(index).text)
+    assert str(CONFIG["seed"]) in text
+    meta_versions = json.loads(_store_meta(folder)["versions"])
+    assert meta_versions["stim"] in text
+
+
+def _store_meta(folder: Path) -> dict[str, str]:
+    from codebench.store import Store
+
+    with Store(folder / codebench.api.STORE_NAME, create=False) as store:
+        return store.meta()
+
+
+def _render_script() -> ModuleType:
+    spec = importlib.util.spec_from_file_location("render_report", ROOT / "scripts" / "render_report.py")
+    assert spec is not None and spec.loader is not None
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+def test_render_script_flags_and_missing_chromium(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+                                                  capsys: pytest.CaptureFixture[str]) -> None:
+    script = _render_script()
+    page = tmp_path / "report" / "index.html"
+    page.parent.mkdir()
+    page.write_text("<!DOCTYPE html><title>x</title>", encoding="utf-8")
+    command = script.chromium_command("/usr/bin/chromium", page, tmp_path / "a.png", tmp_path / "profile", 1400, 4000)
+    for flag in ("--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                 "--disable-background-networking", "--disable-component-update", "--disable-sync",
+                 f"--user-data-dir={tmp_path / 'profile'}", f"--screenshot={tmp_path / 'a.png'}",
+                 "--window-size=1400,4000"):
+        assert flag in command
+    assert command[-1] == page.resolve().as_uri()
+    monkeypatch.setattr(script, "find_chromium", lambda: None)
+    assert script.main([str(tmp_path)]) == 2
+    assert "apt-get install chromium chromium-driver" in capsys.readouterr().err
+    assert script.main([str(tmp_path / "nowhere")]) == 2
