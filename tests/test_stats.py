@@ -170,3 +170,44 @@ def test_saturation_and_bad_rounds() -> None:
     with pytest.raises(ValueError):
         per_round(0.1, 0)
     assert math.isclose(per_round(0.0, 10), 0.0, abs_tol=0.0)
+
+
+# ---------------------------------------------------------------------------
+# The selectable intervals of codebench.stats (k = 7, n = 50, 95% two-sided).
+
+
+def test_clopper_pearson_reference_values() -> None:
+    # Clopper & Pearson, Biometrika 26, 404 (1934); the scipy.stats.binomtest documentation example.
+    from codebench.stats import binomial_interval
+
+    low, high = binomial_interval(7, 50, "clopper_pearson")
+    assert low == pytest.approx(0.0581917003, abs=1e-9)
+    assert high == pytest.approx(0.2673960025, abs=1e-9)
+    # k = 0, n = 1000: upper limit 0.0036820839 (same source, exact formula 1 - 0.025^(1/n)).
+    assert binomial_interval(0, 1000, "clopper_pearson")[1] == pytest.approx(0.0036820839, abs=1e-9)
+
+
+def test_jeffreys_reference_values() -> None:
+    # Beta(k + 1/2, n - k + 1/2) quantiles (Brown, Cai, DasGupta, Stat. Sci. 16, 101 (2001)).
+    from codebench.stats import binomial_interval
+
+    low, high = binomial_interval(7, 50, "jeffreys")
+    assert low == pytest.approx(0.0648717, abs=1e-7)
+    assert high == pytest.approx(0.2553250, abs=1e-7)
+
+
+def test_unknown_interval_method_is_refused() -> None:
+    from codebench.stats import binomial_interval
+
+    with pytest.raises(ValueError, match="wilson"):
+        binomial_interval(1, 10, "wald")
+
+
+@pytest.mark.parametrize("method", ["wilson", "jeffreys", "clopper_pearson"])
+def test_intervals_nest_the_estimate(method: str) -> None:
+    # Common practice: an interval for k/n contains k/n and stays inside [0, 1].
+    from codebench.stats import binomial_interval
+
+    for k, n in [(0, 10), (1, 10), (5, 10), (10, 10), (3, 100000)]:
+        low, high = binomial_interval(k, n, method)
+        assert 0.0 <= low <= k / n <= high <= 1.0
