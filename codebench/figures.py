@@ -311,6 +311,21 @@ def chosen_threshold(records: Sequence[dict[str, Any]]) -> dict[str, Any] | None
     return max(crossings, key=size)
 
 
+def _rate_axes(
+    curves: Sequence[Any], y_range: tuple[float, float]
+) -> tuple[Figure, Any, list[float], bool, bool, float, float]:
+    """A new figure whose axes are logarithmic where the curves' p values or rates span decades."""
+    all_p = [float(p) for curve in curves for p in curve.p]
+    log_x, log_y = _spans_decades(all_p), _spans_decades(y_range)
+    fig, ax = _new_figure()
+    if log_x:
+        ax.set_xscale("log")
+    if log_y:
+        ax.set_yscale("log")
+    y_low, y_high = _pad_limits(*y_range, log_y)
+    return fig, ax, all_p, log_x, log_y, y_low, y_high
+
+
 def _new_figure() -> tuple[Figure, Axes]:
     fig = Figure(figsize=FIGSIZE, layout="constrained")
     FigureCanvasAgg(fig)
@@ -535,15 +550,7 @@ def _per_round_vs_p(out_dir: Path, family: Family, analysis: dict[str, Any]) -> 
     y_range = _y_range(curves)
     if not curves or y_range is None:
         return None
-    all_p = [float(p) for curve in curves for p in curve.p]
-    log_x = _spans_decades(all_p)
-    log_y = _spans_decades(y_range)
-    fig, ax = _new_figure()
-    if log_x:
-        ax.set_xscale("log")
-    if log_y:
-        ax.set_yscale("log")
-    y_low, y_high = _pad_limits(*y_range, log_y)
+    fig, ax, all_p, log_x, log_y, y_low, y_high = _rate_axes(curves, y_range)
     any_zero = False
     for curve in curves:
         colour = distance_colour(curve.distance)
@@ -789,14 +796,7 @@ def _decoders_vs_p(out_dir: Path, group: list[Family]) -> FigureFile | None:
     y_range = _y_range(curves)
     if y_range is None:
         return None
-    all_p = [float(p) for curve in curves for p in curve.p]
-    log_x, log_y = _spans_decades(all_p), _spans_decades(y_range)
-    fig, ax = _new_figure()
-    if log_x:
-        ax.set_xscale("log")
-    if log_y:
-        ax.set_yscale("log")
-    y_low, y_high = _pad_limits(*y_range, log_y)
+    fig, ax, all_p, log_x, log_y, y_low, y_high = _rate_axes(curves, y_range)
     decoders: list[str] = []
     for decoder, decoder_curves in per_decoder:
         if decoder not in decoders:
