@@ -7,6 +7,7 @@ key path, the bad value and what is allowed); the message template is
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import numpy as np
@@ -18,6 +19,8 @@ from codebench.engine.stopping import DEFAULT_BATCH_BYTES, Stopping
 from codebench.errors import ConfigError
 
 REPO = Path(__file__).resolve().parent.parent
+#: A shipped example device as a TOML string (JSON string escapes are valid TOML basic-string escapes).
+EXAMPLE_DEVICE = json.dumps(str(REPO / "configs" / "devices" / "larkspur_current.toml"))
 
 TOP = 'name = "check"\nseed = 5\n'
 
@@ -77,10 +80,27 @@ BAD: list[tuple[str, str, list[str]]] = [
      ["study[0].distances[0]", "True", "an integer"]),
     ("unknown code", sweep_text(TOP, study(code='"toric"')),
      ["study[0].code", "'toric'", "one of 'repetition', 'rotated_surface'"]),
-    ("unknown noise", sweep_text(TOP, study(noise='"device"')),
-     ["study[0].noise", "'device'", "'circuit_depolarizing'", "'si1000'"]),
-    ("device key not known yet", sweep_text(TOP, study(device='"configs/devices/x.toml"')),
-     ["study[0].device is not a known key", "allowed keys:"]),
+    ("unknown noise", sweep_text(TOP, study(noise='"thermal"')),
+     ["study[0].noise", "'thermal'", "'circuit_depolarizing'", "'si1000'", "'device'"]),
+    ("device noise without device", sweep_text(TOP, study(noise='"device"', p=None)),
+     ["study[0].device is required", "the path of a device file"]),
+    ("p with device noise", sweep_text(TOP, study(noise='"device"', device='"dev.toml"')),
+     ["study[0].p is not used with noise = 'device'", "scale = [...]"]),
+    ("noise_options with device noise",
+     sweep_text(TOP, study(noise='"device"', p=None, device='"dev.toml"', noise_options='{ a = "b" }')),
+     ["study[0].noise_options is not used with noise = 'device'"]),
+    ("scale without device noise", sweep_text(TOP, study(scale="[0.5]")),
+     ["study[0].scale is only used with noise = 'device'", "'circuit_depolarizing'"]),
+    ("device without device noise", sweep_text(TOP, study(device='"configs/devices/x.toml"')),
+     ["study[0].device is only used with noise = 'device'", "'circuit_depolarizing'"]),
+    ("missing device file", sweep_text(TOP, study(noise='"device"', p=None, device='"nowhere.toml"')),
+     ["study[0].device", "'nowhere.toml'", "an existing device file"]),
+    ("device path not a string", sweep_text(TOP, study(noise='"device"', p=None, device="3")),
+     ["study[0].device", "3", "the path of a device file"]),
+    ("scale above p_max", sweep_text(TOP, study(noise='"device"', p=None, device=EXAMPLE_DEVICE, scale="[0.5, 101]")),
+     ["study[0].scale[1]", "101", "a number in [0, 100] for device"]),
+    ("scale negative", sweep_text(TOP, study(noise='"device"', p=None, device=EXAMPLE_DEVICE, scale="[-0.5]")),
+     ["study[0].scale[0]", "-0.5", "a number in [0, 100] for device"]),
     ("unknown decoder", sweep_text(TOP, study(decoders='["mwpm", "guesswork"]')),
      ["study[0].decoders[1]", "'guesswork'", "'mwpm'"]),
     ("decoders empty", sweep_text(TOP, study(decoders="[]")),

@@ -10,6 +10,7 @@ pickling for shipping to workers, inputs untouched, seeded reproducibility).
 from __future__ import annotations
 
 import pickle
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -22,6 +23,22 @@ from codebench.engine.executors import InProcessExecutor, LocalExecutor
 from codebench.engine.points import Point
 from codebench.engine.worker import BatchTask, batch_seed
 from codebench.noise import NOISE_MODELS
+from codebench.noise.base import NoiseModel
+from codebench.noise.calibration import load_device
+
+REPO = Path(__file__).parents[1]
+#: The device the `device` noise model is checked with (a fictional example shipped in configs/devices).
+EXAMPLE_DEVICE = REPO / "configs" / "devices" / "larkspur_improved.toml"
+
+
+def model_options(name: str) -> dict[str, str]:
+    """Options a model needs to be built: the device noise model needs a device file."""
+    return {"device": load_device(EXAMPLE_DEVICE).canonical_json()} if name == "device" else {}
+
+
+def make_model(name: str, p: float) -> NoiseModel:
+    """The registered noise model ``name`` at rate (or, for a device, scale) ``p``."""
+    return NOISE_MODELS[name](p, **model_options(name))
 
 
 def _small_distance(family_name: str) -> int:
@@ -97,28 +114,34 @@ class TestDecoderConformance:
 @pytest.mark.parametrize("name", sorted(NOISE_MODELS))
 class TestNoiseModelConformance:
     def test_params_identify_the_model(self, name: str) -> None:
-        model = NOISE_MODELS[name](0.001)
+        model = make_model(name, 0.001)
         params = model.get_params()
         assert params["noise"] == name and params["p"] == 0.001
-        assert set(params["noise_options"]) == set(NOISE_MODELS[name].options)
+        assert set(params["noise_options"]) == set(NOISE_MODELS[name].options) | set(model_options(name))
+        rebuilt = NOISE_MODELS[name](params["p"], **params["noise_options"])
+        assert rebuilt.get_params() == params
 
     def test_zero_noise_is_noiseless(self, name: str) -> None:
         layout = CODE_FAMILIES["rotated_surface"].layout(3, "Z")
-        circuit = NOISE_MODELS[name](0.0).memory_circuit(layout, 3, "Z")
+        circuit = make_model(name, 0.0).memory_circuit(layout, 3, "Z")
         assert circuit.detector_error_model().num_errors == 0
 
     def test_largest_rate_gives_valid_channels(self, name: str) -> None:
         cls = NOISE_MODELS[name]
         layout = CODE_FAMILIES["rotated_surface"].layout(3, "X")
-        circuit = cls(cls.p_max).memory_circuit(layout, 2, "X")  # stim rejects invalid probabilities
-        assert circuit.num_detectors > 0
+        # A device's scale multiplies its error rates (probabilities are capped at the channel maxima):
+        # check a moderate scale and the largest allowed one.
+        rates = (10.0, cls.p_max) if name == "device" else (cls.p_max,)
+        for p in rates:
+            circuit = make_model(name, p).memory_circuit(layout, 2, "X")  # stim rejects invalid probabilities
+            assert circuit.num_detectors > 0
 
     def test_same_gate_set_as_declared(self, name: str) -> None:
-        cls = NOISE_MODELS[name]
+        model = make_model(name, 0.001)
         layout = CODE_FAMILIES["rotated_surface"].layout(3, "X")
-        gates = {inst.name for inst in cls(0.001).memory_circuit(layout, 2, "X").flattened()}
+        gates = {inst.name for inst in model.memory_circuit(layout, 2, "X").flattened()}
         two_qubit = {"CX", "CZ"} & gates
-        assert two_qubit == ({"CX"} if cls.gate_set == "cx" else {"CZ"})
+        assert two_qubit == ({"CX"} if model.circuit_gate_set() == "cx" else {"CZ"})
 
 
 @pytest.mark.parametrize("name", sorted(CODE_FAMILIES))

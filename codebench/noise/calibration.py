@@ -52,6 +52,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from codebench.codes import CODE_FAMILIES
 from codebench.errors import DeviceFileError, not_allowed
 
 QUBIT_KEYS = ("t1_us", "t2_us", "gate_1q_error", "readout_error", "readout_error_0to1",
@@ -215,6 +216,7 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
         return qid
 
     pairs: dict[frozenset[str], float] = {}
+    pair_entry: dict[frozenset[str], int] = {}
     raw_pairs = top.get("pairs", [])
     if not isinstance(raw_pairs, list):
         raise r.fail("pairs", raw_pairs, "an array of tables ([[pairs]])")
@@ -227,7 +229,10 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
         a, b = known(ends[0], f"{path}.qubits[0]"), known(ends[1], f"{path}.qubits[1]")
         if "gate_2q_error" not in table:
             raise DeviceFileError(f"{source}: {path}.gate_2q_error is required.")
+        if frozenset((a, b)) in pairs:
+            raise r.fail(f"{path}.qubits", ends, "a pair no earlier [[pairs]] entry gives")
         pairs[frozenset((a, b))] = r.probability(table["gate_2q_error"], f"{path}.gate_2q_error")
+        pair_entry[frozenset((a, b))] = i
 
     edges: frozenset[frozenset[str]] | None = None
     if "coupling" in top:
@@ -241,9 +246,9 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
                 raise r.fail(f"coupling.edges[{i}]", edge, "a pair of two different qubit ids")
             found.add(frozenset((known(edge[0], f"coupling.edges[{i}][0]"), known(edge[1], f"coupling.edges[{i}][1]"))))
         edges = frozenset(found)
-        for pair in pairs:
+        for pair, i in pair_entry.items():
             if pair not in edges:
-                raise r.fail("pairs", sorted(pair), "pairs that are edges of [coupling]")
+                raise r.fail(f"pairs[{i}].qubits", raw_pairs[i]["qubits"], "an edge of [coupling]")
 
     layouts: dict[tuple[str, int], tuple[str, ...]] = {}
     raw_layouts = top.get("layouts", [])
@@ -253,10 +258,15 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
         path = f"layouts[{i}]"
         table = r.keys(entry, path, ("code", "distance", "qubits"))
         code, distance, mapped = table.get("code"), table.get("distance"), table.get("qubits")
-        if not isinstance(code, str):
-            raise r.fail(f"{path}.code", code, "a code family name")
-        if isinstance(distance, bool) or not isinstance(distance, int) or distance < 2:
-            raise r.fail(f"{path}.distance", distance, "an integer >= 2")
+        if not isinstance(code, str) or code not in CODE_FAMILIES:
+            raise r.fail(f"{path}.code", code, "one of " + ", ".join(repr(c) for c in CODE_FAMILIES))
+        if isinstance(distance, bool) or not isinstance(distance, int):
+            raise r.fail(f"{path}.distance", distance, f"an integer (a distance of {code})")
+        problem = CODE_FAMILIES[code].distance_problem(distance)
+        if problem is not None:
+            raise r.fail(f"{path}.distance", distance, f"{problem} for {code}")
+        if (code, distance) in layouts:
+            raise r.fail(f"{path}.distance", distance, f"a distance no earlier {code} layout uses")
         if not isinstance(mapped, list) or not mapped:
             raise r.fail(f"{path}.qubits", mapped, "a list of device qubit ids, one per code qubit")
         ids = tuple(known(q, f"{path}.qubits[{j}]") for j, q in enumerate(mapped))

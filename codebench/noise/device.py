@@ -121,9 +121,12 @@ class DeviceNoise(NoiseModel):
         if mapping is None:
             return {q: None for q in ideal.qubits}
         if len(mapping) != len(ideal.qubits):
+            entries = self.device.data.get("layouts", [])
+            index = next(i for i, e in enumerate(entries)
+                         if (e.get("code"), e.get("distance")) == (layout.family, layout.distance))
             raise DeviceFileError(
-                f"device {self.device.name!r}: layouts for {layout.family} d={layout.distance} maps "
-                f"{len(mapping)} qubits; the code has {len(ideal.qubits)}."
+                f"device {self.device.name!r}: layouts[{index}].qubits must list {len(ideal.qubits)} device "
+                f"qubits (one per qubit of {layout.family} d={layout.distance}); got {len(mapping)}."
             )
         return {q: mapping[i] for i, q in enumerate(ideal.qubits)}
 
