@@ -118,6 +118,72 @@ def cmd_circuit(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _distances(text: str) -> list[int]:
+    try:
+        values = [int(part) for part in text.split(",") if part.strip()]
+    except ValueError:
+        values = []
+    if not values:
+        raise argparse.ArgumentTypeError(not_allowed("--distances", text, "a comma-separated list of integers "
+                                                     "such as 3,5,7"))
+    return values
+
+
+def _rates(text: str) -> list[float]:
+    try:
+        values = [float(part) for part in text.split(",") if part.strip()]
+    except ValueError:
+        values = []
+    if not values or not all(0 < v < 0.5 for v in values):
+        raise argparse.ArgumentTypeError(not_allowed("--target", text, "a per-round rate in (0, 0.5) "
+                                                     "(or several, comma-separated)"))
+    return values
+
+
+def _improvement(text: str) -> tuple[str, float]:
+    from codebench.forecast import parse_improve
+
+    try:
+        return parse_improve(text)
+    except CodebenchError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+
+
+def _seconds(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not value > 0 or value == float("inf"):
+        raise argparse.ArgumentTypeError(not_allowed("--budget-seconds", text, "a positive number of seconds"))
+    return value
+
+
+def cmd_forecast(args: argparse.Namespace) -> int:
+    import json
+
+    from codebench.forecast import DEFAULT_TARGETS, forecast
+    from codebench.forecast_render import forecast_table
+
+    targets = [t for group in args.target for t in group] if args.target else list(DEFAULT_TARGETS)
+    improve: dict[str, float] = {}
+    for name, factor in args.improve or []:
+        improve[name] = improve.get(name, 1.0) * factor
+    result = forecast(args.device, code=args.code, distances=args.distances, basis=args.basis,
+                      decoder=args.decoder, targets=targets, budget_seconds=args.budget_seconds,
+                      workers=args.workers, seed=args.seed, out=args.out, improve=improve, method=args.method,
+                      progress=not args.quiet)
+    if args.format == "json":
+        print(json.dumps(result, indent=2, allow_nan=False))
+    else:
+        print(forecast_table(result))
+    if args.out:
+        out = Path(args.out)
+        print(f"wrote {out / 'forecast.json'}, {out / 'forecast.csv'}, {out / 'forecast.png'}, "
+              f"{out / 'forecast.svg'} (samples in {out / 'store'})", file=sys.stderr)
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="codebench", description="Logical-qubit memory experiments: sample, decode, fit.")
     sub = parser.add_subparsers(dest="verb", required=True, parser_class=_Parser)
@@ -165,6 +231,28 @@ def build_parser() -> argparse.ArgumentParser:
     circuit.add_argument("--noise")
     circuit.add_argument("--p", type=float)
     circuit.set_defaults(func=cmd_circuit)
+
+    fc = sub.add_parser("forecast", help="forecast a device's logical qubit from its calibration file")
+    fc.add_argument("device", help="device calibration file (TOML or JSON)")
+    fc.add_argument("--code", default="rotated_surface", help="code family (default: rotated_surface)")
+    fc.add_argument("--distances", type=_distances, default=[3, 5, 7], help="comma-separated (default: 3,5,7)")
+    fc.add_argument("--basis", default="Z", help="memory basis (default: Z)")
+    fc.add_argument("--decoder", default="mwpm", help="decoder (default: mwpm)")
+    fc.add_argument("--target", type=_rates, action="append",
+                    help="target per-round rate; repeatable or comma-separated (default: 1e-6,1e-9,1e-12)")
+    fc.add_argument("--budget-seconds", type=_seconds, default=60.0,
+                    help="wall-clock budget of the whole forecast (default: 60)")
+    fc.add_argument("--improve", type=_improvement, action="append", metavar="PARAM=FACTOR",
+                    help="what-if: scale t1_us/t2_us (factor on 1/T), gate_1q_error, gate_2q_error, "
+                         "readout_error or reset_error; repeatable")
+    fc.add_argument("--method", choices=["auto", "direct", "extrapolated"], default="auto",
+                    help="how each distance is estimated (default: auto)")
+    fc.add_argument("--format", choices=["table", "json"], default="table")
+    fc.add_argument("--out", help="folder for forecast.json/.csv/.png/.svg and the sample store")
+    fc.add_argument("--workers", type=_positive_int("--workers"), help="local worker processes (default: all cores)")
+    fc.add_argument("--seed", type=int, default=20260101, help="seed of the sampling (default: 20260101)")
+    fc.add_argument("--quiet", action="store_true", help="no progress lines")
+    fc.set_defaults(func=cmd_forecast)
     return parser
 
 

@@ -3,9 +3,12 @@
 from __future__ import annotations
 
 from abc import ABC, abstractmethod
-from typing import ClassVar
+from typing import TYPE_CHECKING, ClassVar
 
 from codebench.codes.layout import Basis, Layout
+
+if TYPE_CHECKING:
+    from codebench.circuits import GateSet, IdealCircuit
 
 
 class CodeFamily(ABC):
@@ -29,3 +32,9 @@ class CodeFamily(ABC):
     def qubit_count(self, distance: int) -> int:
         """Physical qubits the code needs at ``distance``."""
         return len(self.layout(distance, self.bases[0]).qubits)
+
+    def ideal_circuit(self, distance: int, rounds: int, basis: Basis, gate_set: GateSet) -> IdealCircuit:
+        """The noiseless memory experiment; families with their own round structure override it."""
+        from codebench.circuits import build_memory
+
+        return build_memory(self.layout(distance, basis), rounds, basis, gate_set)

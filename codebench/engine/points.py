@@ -72,9 +72,9 @@ class Point:
 
     def circuit(self) -> stim.Circuit:
         """The noisy memory-experiment circuit of this point."""
-        layout = get_code_family(self.code).layout(self.distance, self.basis)
         model = get_noise_model(self.noise)(self.p, **dict(self.noise_options))
-        return model.memory_circuit(layout, self.rounds, self.basis)
+        family = get_code_family(self.code)
+        return model.decorate(family.ideal_circuit(self.distance, self.rounds, self.basis, model.circuit_gate_set()))
 
     def qubit_count(self) -> int:
         return get_code_family(self.code).qubit_count(self.distance)

@@ -1,0 +1,284 @@
+"""A forecast (:func:`codebench.forecast.forecast`) as a terminal table, JSON, CSV and a figure.
+
+Files written by :func:`write_outputs` into the ``--out`` folder:
+
+- ``forecast.json``: the forecast dict (``allow_nan=False``, plain types);
+- ``forecast.csv``: one row per distance;
+- ``forecast.png`` (150 dpi) and ``forecast.svg``: left, the per-round
+  logical error against the distance with 95% intervals (filled markers:
+  direct, open squares: extrapolated), the Lambda fit extended to the
+  distances the targets need, the targets, and the break-even lines of the
+  best and median idle qubit; right, the per-round error against the noise
+  scale with each extrapolated distance's power law continued down to the
+  device's own noise (s = 1).
+
+Figures are :class:`matplotlib.figure.Figure` objects on the Agg canvas
+(no pyplot, no global state).
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+import os
+import tempfile
+from pathlib import Path
+from typing import Any, Sequence, cast
+
+import matplotlib
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+__all__ = ["CSV_COLUMNS", "forecast_table", "forecast_figure", "write_outputs"]
+
+CSV_COLUMNS = [
+    "distance", "qubits", "rounds", "per_round_rate", "low", "high", "method", "method_kind",
+    "per_second_rate", "per_second_low", "per_second_high", "round_duration_us", "shots", "failures",
+    "scales", "exponent", "exponent_se", "break_even_verdict", "beats_best_idle", "beats_median_idle",
+]
+DPI = 150
+_COLOURS = ("#1b6ca8", "#d1495b", "#2e8b57", "#8a5a00", "#6a4c93", "#00798c", "#c05a00", "#3d3d3d")
+
+
+def _e(value: Any, digits: int = 3) -> str:
+    if value is None:
+        return "-"
+    return f"{float(value):.{digits}e}"
+
+
+def _g(value: Any, digits: int = 3) -> str:
+    if value is None:
+        return "-"
+    return f"{float(value):.{digits}g}"
+
+
+def _columns(rows: Sequence[Sequence[str]], right: Sequence[bool]) -> list[str]:
+    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
+    lines = []
+    for n, row in enumerate(rows):
+        cells = [c.rjust(w) if right[i] else c.ljust(w) for i, (c, w) in enumerate(zip(row, widths))]
+        lines.append("  " + "  ".join(cells).rstrip())
+        if n == 0:
+            lines.append("  " + "  ".join("-" * w for w in widths))
+    return lines
+
+
+def forecast_table(result: dict[str, Any]) -> str:
+    """The forecast as text for the terminal."""
+    improve = result.get("improve") or {}
+    what_if = (" with " + ", ".join(f"{k} x{v:g}" for k, v in improve.items())) if improve else ""
+    lines = [
+        f"Forecast for {result['device']}{what_if}",
+        f"{result['code']} memory in the {result['basis']} basis, rounds = d, decoder {result['decoder']}",
+        "A model-based projection from the device file: see the cautions at the end.",
+        "",
+        "Per distance (per-round logical error with 95% interval)",
+    ]
+    rows = [["d", "qubits", "per round", "95% interval", "per second", "method"]]
+    for r in result["distances"]:
+        interval = f"[{_e(r['low'])}, {_e(r['high'])}]"
+        rate = _e(r["per_round_rate"]) if r["per_round_rate"] is not None else f"< {_e(r['high'])}"
+        per_s = f"{_g(r['per_second_rate'])}/s" if r["per_second_rate"] is not None else "-"
+        method = r["method"]
+        if r.get("method_kind") == "direct":
+            method += f" ({r['failures']:,} failures in {r['shots']:,} shots)"
+        elif r.get("exponent") is not None:
+            method += f", exponent {r['exponent']:.2f} +- {1.96 * r['exponent_se']:.2f}"
+        rows.append([str(r["distance"]), f"{r['qubits']:,}", rate, interval, per_s, method])
+    lines += _columns(rows, [True, True, True, False, True, False])
+    lines.append("")
+    if result["lambda"] is not None:
+        fit = result["lambda_fit"]
+        lines.append(f"Lambda = {result['lambda']:.3f} [{result['lambda_low']:.3f}, {result['lambda_high']:.3f}] "
+                     f"(95%; eps_d = C / Lambda^((d+1)/2) over d = {', '.join(map(str, fit['distances']))}, "
+                     f"C = {fit['C']:.3g}, chi2/dof = {fit['chi2']:.2f}/{fit['dof']})")
+        for pair in result.get("lambda_pairs", []):
+            a, b = pair["distances"]
+            lines.append(f"  eps_{a} / eps_{b}: Lambda = {pair['lambda']:.3f} [{pair['low']:.3f}, {pair['high']:.3f}]")
+    else:
+        lines.append("Lambda: no fit (fewer than two distances with an estimate)")
+    lines.append("")
+    lines.append("Distance and physical qubits needed per target (per-round logical error)")
+    rows = [["target", "d", "qubits", "d range (95%)", "qubits range", "note"]]
+    for t in result["targets"]:
+        if t["distance"] is None:
+            rows.append([f"{t['target']:.0e}", "-", "-", "-", "-", "not reached by growing d"])
+            continue
+        d_range = f"{t['distance_low'] or '-'}-{t['distance_high'] or 'unbounded'}"
+        q_low = f"{t['qubits_low']:,}" if t["qubits_low"] is not None else "-"
+        q_high = f"{t['qubits_high']:,}" if t["qubits_high"] is not None else "unbounded"
+        q_range = f"{q_low}-{q_high}"
+        note = "extrapolated beyond the forecast distances" if t["extrapolation"] else ""
+        rows.append([f"{t['target']:.0e}", str(t["distance"]), f"{t['qubits']:,}", d_range, q_range, note])
+    lines += _columns(rows, [False, True, True, False, False, False])
+    lines.append("")
+    lines.append(f"Round duration: {result['round_duration_us']:.3f} us "
+                 f"({1e6 / result['round_duration_us']:,.0f} rounds per second); per-second rates above are "
+                 "eps / round duration.")
+    be = result["break_even"]
+    lines.append("")
+    lines.append("Break-even: logical error per round against one idle physical qubit over one round "
+                 "(Tomita & Svore, PRA 90, 062320 (2014), Eqs. 9-10)")
+    if be["best_qubit"] == "defaults":
+        lines.append(f"  idle qubit with the default T1 {be['best_qubit_t1_us']:g} us, T2 {be['best_qubit_t2_us']:g} us "
+                     f"(the file lists no qubits): {_e(be['idle_error_best'])}")
+    else:
+        lines.append(f"  best idle qubit {be['best_qubit']} (T1 {be['best_qubit_t1_us']:g} us, T2 "
+                     f"{be['best_qubit_t2_us']:g} us): {_e(be['idle_error_best'])}; median over "
+                     f"{be['qubits_considered']} qubits: {_e(be['idle_error_median'])}")
+    for row in be["distances"]:
+        sure = ""
+        if row["verdict"].startswith("beats the best") and row["beats_best_at_95"]:
+            sure = " (also at the interval's upper end)"
+        elif row["verdict"].startswith("beats the median") and row["beats_median_at_95"]:
+            sure = " (also at the interval's upper end)"
+        lines.append(f"  d = {row['distance']}: {_e(row['per_round_rate'])} per round: {row['verdict']}{sure}")
+    budget = result["budget"]
+    lines.append("")
+    lines.append(f"Budget: {budget['seconds']:g} s asked; sampling took {budget['wall_seconds']:.1f} s wall and "
+                 f"{budget['worker_seconds']:.1f} worker-seconds on {budget['workers']} worker(s)")
+    if result["notes"]:
+        lines.append("")
+        lines.append("Notes:")
+        lines += [f"  - {note}" for note in result["notes"]]
+    lines.append("")
+    lines.append("Cautions:")
+    lines += [f"  - {c}" for c in result["cautions"]]
+    return "\n".join(lines)
+
+
+def _csv_rows(result: dict[str, Any]) -> list[dict[str, Any]]:
+    verdicts = {r["distance"]: r for r in result["break_even"]["distances"]}
+    out = []
+    for r in result["distances"]:
+        be = verdicts.get(r["distance"], {})
+        row = {key: r.get(key) for key in CSV_COLUMNS}
+        row["scales"] = " ".join(f"{s:g}" for s in r.get("scales", []))
+        row["break_even_verdict"] = be.get("verdict")
+        row["beats_best_idle"] = be.get("beats_best")
+        row["beats_median_idle"] = be.get("beats_median")
+        out.append({k: ("" if v is None else v) for k, v in row.items()})
+    return out
+
+
+def _atomic_write(path: Path, text: str) -> None:
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}-", suffix=path.suffix, dir=path.parent)
+    with os.fdopen(fd, "w", newline="") as handle:
+        handle.write(text)
+    os.replace(tmp, path)
+
+
+def forecast_figure(result: dict[str, Any]) -> Figure:
+    """The two-panel forecast figure (see the module docstring)."""
+    fig = Figure(figsize=(11.0, 4.6), layout="constrained")
+    FigureCanvasAgg(fig)
+    left, right = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.25, 1.0]})
+    rows = result["distances"]
+    fit = result["lambda_fit"]
+    be = result["break_even"]
+    d_fit_max = max(r["distance"] for r in rows)
+    reachable = [t["distance"] for t in result["targets"] if t["distance"] is not None]
+    d_max = max([d_fit_max] + reachable)
+    d_min = min(r["distance"] for r in rows)
+
+    for kind, marker, face, label in (("direct", "o", None, "direct sampling"),
+                                      ("extrapolated", "s", "white", "extrapolated from raised noise")):
+        sel = [r for r in rows if r.get("method_kind") == kind and r["per_round_rate"] is not None]
+        if not sel:
+            continue
+        x = [r["distance"] for r in sel]
+        y = [r["per_round_rate"] for r in sel]
+        err = [[v - r["low"] for v, r in zip(y, sel)], [r["high"] - v for v, r in zip(y, sel)]]
+        left.errorbar(x, y, yerr=err, fmt=marker, color=_COLOURS[0], mfc=face or _COLOURS[0], ms=7, capsize=4,
+                      label=label, zorder=3)
+    bounds = [r for r in rows if r["per_round_rate"] is None and r["high"] is not None]
+    if bounds:
+        left.plot([r["distance"] for r in bounds], [r["high"] for r in bounds], "v", color=_COLOURS[0],
+                  ms=7, label="upper bound (no failures)")
+    if fit is not None:
+        c, lam = fit["C"], fit["lambda"]
+        ds_line = [d_min + 0.25 * i for i in range(int((d_max - d_min) / 0.25) + 1)]
+        inside = [d for d in ds_line if d <= d_fit_max]
+        outside = [d for d in ds_line if d >= d_fit_max]
+
+        def line(d: float) -> float:
+            return float(c / lam ** ((d + 1) / 2))
+
+        left.plot(inside, [line(d) for d in inside], "-", color=_COLOURS[1],
+                  label=f"fit: Lambda = {lam:.3g} [{result['lambda_low']:.3g}, {result['lambda_high']:.3g}]")
+        if len(outside) > 1:
+            left.plot(outside, [line(d) for d in outside], "--", color=_COLOURS[1], label="fit, extrapolated")
+    for i, t in enumerate(result["targets"]):
+        left.axhline(t["target"], color="0.55", lw=0.8, ls=":")
+        text = f"target {t['target']:.0e}" + (f": d = {t['distance']}, {t['qubits']:,} qubits"
+                                              if t["distance"] is not None else ": not reached")
+        left.annotate(text, (d_min, t["target"]), xytext=(2, 2), textcoords="offset points", fontsize=7,
+                      color="0.35")
+        if t["distance"] is not None and fit is not None:
+            left.plot([t["distance"]], [t["target"]], "x", color=_COLOURS[1], ms=6)
+    left.axhline(be["idle_error_best"], color=_COLOURS[2], lw=1.2, ls="-.",
+                 label=f"idle qubit, best ({be['best_qubit']}): {be['idle_error_best']:.2g}")
+    if be["qubits_considered"] > 1:
+        left.axhline(be["idle_error_median"], color=_COLOURS[3], lw=1.2, ls="-.",
+                     label=f"idle qubit, median: {be['idle_error_median']:.2g}")
+    left.set_yscale("log")
+    left.set_xlabel("code distance d")
+    left.set_ylabel("logical error per round")
+    left.set_title(f"{result['device']}: {result['code']} ({result['basis']}), {result['decoder']}; "
+                   f"round {result['round_duration_us']:.3g} us", fontsize=9)
+    left.grid(True, which="major", alpha=0.3)
+    left.legend(fontsize=7, loc="upper right")
+
+    for i, r in enumerate(rows):
+        colour = _COLOURS[i % len(_COLOURS)]
+        points = r.get("points") or []
+        if r.get("method_kind") == "direct":
+            if r["per_round_rate"] is not None:
+                right.errorbar([1.0], [r["per_round_rate"]],
+                               yerr=[[r["per_round_rate"] - r["low"]], [r["high"] - r["per_round_rate"]]],
+                               fmt="o", color=colour, capsize=3, label=f"d = {r['distance']}, direct")
+            continue
+        good = [p for p in points if p["failures"] > 0 and p["per_round_rate"] is not None]
+        if good:
+            right.errorbar([p["scale"] for p in good], [p["per_round_rate"] for p in good],
+                           yerr=[[p["per_round_rate"] - p["low"] for p in good],
+                                 [p["high"] - p["per_round_rate"] for p in good]],
+                           fmt=".", color=colour, capsize=2, label=f"d = {r['distance']}, sampled at raised noise")
+        if r["per_round_rate"] is not None and r.get("exponent") is not None:
+            top = max(p["scale"] for p in points)
+            xs = [math.exp(math.log(top) * k / 40) for k in range(41)]
+            right.plot(xs, [r["per_round_rate"] * x ** r["exponent"] for x in xs], "--", color=colour, lw=1)
+            right.errorbar([1.0], [r["per_round_rate"]],
+                           yerr=[[r["per_round_rate"] - r["low"]], [r["high"] - r["per_round_rate"]]],
+                           fmt="s", mfc="white", color=colour, capsize=3,
+                           label=f"d = {r['distance']}, power law at s = 1 (exponent {r['exponent']:.2f})")
+    right.set_xscale("log")
+    right.set_yscale("log")
+    right.set_xlabel("noise scale s (1 = the device)")
+    right.set_ylabel("logical error per round")
+    right.set_title("per-round error against the noise scale s", fontsize=9)
+    right.grid(True, which="major", alpha=0.3)
+    if right.get_legend_handles_labels()[0]:
+        right.legend(fontsize=7, loc="upper left")
+    return fig
+
+
+def write_outputs(result: dict[str, Any], folder: str | Path) -> list[Path]:
+    """Write forecast.json, forecast.csv, forecast.png and forecast.svg into ``folder``."""
+    out = Path(folder)
+    out.mkdir(parents=True, exist_ok=True)
+    paths = [out / "forecast.json", out / "forecast.csv", out / "forecast.png", out / "forecast.svg"]
+    _atomic_write(paths[0], json.dumps(result, indent=2, allow_nan=False) + "\n")
+    rows = _csv_rows(result)
+    fd, tmp = tempfile.mkstemp(prefix=".forecast-", suffix=".csv", dir=out)
+    with os.fdopen(fd, "w", newline="") as handle:
+        writer = csv.DictWriter(handle, fieldnames=CSV_COLUMNS)
+        writer.writeheader()
+        writer.writerows(rows)
+    os.replace(tmp, paths[1])
+    fig = forecast_figure(result)
+    fig.savefig(paths[2], dpi=DPI, metadata={"Software": None})
+    with matplotlib.rc_context(cast(Any, {"svg.hashsalt": "forecast"})):
+        fig.savefig(paths[3], metadata={"Date": None, "Creator": None})
+    return paths

@@ -1,0 +1,336 @@
+"""Device forecasts (codebench.forecast) against outside references.
+
+References used below:
+
+* Tomita & Svore, PRA 90, 062320 (2014), Eqs. 9-10: the Pauli-twirled
+  amplitude and phase damping channel over an idle of t, px = py =
+  (1 - e^(-t/T1)) / 4, pz = (1 - e^(-t/T2)) / 2 - (1 - e^(-t/T1)) / 4.
+* Acharya et al., Nature 638, 920 (2025), Eq. 1: eps_d = C / Lambda^((d+1)/2);
+  with two distances d and d + 2, Lambda = eps_d / eps_(d+2).
+* Wilson, JASA 22, 209 (1927): the score interval of a binomial proportion.
+* Acharya et al., Nature 614, 676 (2023): the per-round rate
+  eps = (1 - (1 - 2 P)^(1/r)) / 2 of a failure probability P over r rounds.
+* Common practice: the rotated surface code of distance d uses d^2 data and
+  d^2 - 1 measure qubits; a CZ-compiled syndrome round is a reset layer, five
+  one-qubit (Hadamard) layers around four two-qubit layers, and a measurement
+  layer; a what-if that halves every two-qubit gate error lowers the logical
+  error; a device below threshold has Lambda > 1.
+* Statistical agreement: two independent estimates agree when their 95%
+  intervals overlap and their log difference is within 1.96 combined
+  standard errors (common practice).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import time
+from pathlib import Path
+from typing import Any
+
+import pytest
+
+from codebench.cli import main
+from codebench.errors import ConfigError, DeviceFileError
+from codebench.forecast import CAUTIONS, forecast, idle_error, improve_device, parse_improve
+from codebench.noise.calibration import load_device
+
+ROOT = Path(__file__).resolve().parents[1]
+DEVICES = ROOT / "configs" / "devices"
+CURRENT = DEVICES / "larkspur_current.toml"
+IMPROVED = DEVICES / "larkspur_improved.toml"
+GOAL = DEVICES / "larkspur_goal.toml"
+Z95 = 1.959963984540054
+
+
+def wilson(k: int, n: int) -> tuple[float, float]:
+    """Wilson, JASA 22, 209 (1927), written out here independently of codebench.stats."""
+    z = Z95
+    phat = k / n
+    denom = 1 + z * z / n
+    centre = (phat + z * z / (2 * n)) / denom
+    half = z * math.sqrt(phat * (1 - phat) / n + z * z / (4 * n * n)) / denom
+    return centre - half, centre + half
+
+
+def per_round(total: float, rounds: int) -> float:
+    """Acharya et al., Nature 614, 676 (2023): per-round rate from the failure probability."""
+    return (1 - (1 - 2 * total) ** (1 / rounds)) / 2
+
+
+def tomita_svore_idle(t_us: float, t1_us: float, t2_us: float) -> float:
+    """Tomita & Svore, PRA 90, 062320 (2014), Eqs. 9-10: px + py + pz."""
+    px = (1 - math.exp(-t_us / t1_us)) / 4
+    pz = (1 - math.exp(-t_us / t2_us)) / 2 - (1 - math.exp(-t_us / t1_us)) / 4
+    return 2 * px + pz
+
+
+@pytest.fixture(scope="module")
+def improved(tmp_path_factory: pytest.TempPathFactory) -> tuple[dict[str, Any], Path]:
+    out = tmp_path_factory.mktemp("forecast-improved")
+    return forecast(IMPROVED, distances=(3, 5), budget_seconds=15, workers=2, out=out), out
+
+
+# --- the result: keys, types, files --------------------------------------------------------------
+
+
+def test_json_keys_and_types(improved: tuple[dict[str, Any], Path]) -> None:
+    """The keys the issue lists, with their types; plain JSON without NaN (common practice)."""
+    result, _ = improved
+    json.dumps(result, allow_nan=False)
+    for key, kind in (("device", str), ("code", str), ("basis", str), ("decoder", str),
+                      ("round_duration_us", float), ("distances", list), ("lambda", float),
+                      ("lambda_low", float), ("lambda_high", float), ("targets", list), ("break_even", dict)):
+        assert isinstance(result[key], kind), key
+    assert result["device"] == "Larkspur Aster-2 (improved)"
+    assert (result["code"], result["basis"], result["decoder"]) == ("rotated_surface", "Z", "mwpm")
+    for row in result["distances"]:
+        assert isinstance(row["distance"], int) and isinstance(row["qubits"], int)
+        for key in ("per_round_rate", "low", "high"):
+            assert isinstance(row[key], float), key
+        assert isinstance(row["method"], str) and row["method_kind"] in ("direct", "extrapolated")
+        assert row["low"] <= row["per_round_rate"] <= row["high"]
+    assert [r["distance"] for r in result["distances"]] == [3, 5]
+    for target in result["targets"]:
+        assert set(target) >= {"target", "distance", "qubits"}
+        assert isinstance(target["distance"], int) and isinstance(target["qubits"], int)
+    assert result["lambda_low"] <= result["lambda"] <= result["lambda_high"]
+    assert result["cautions"] == list(CAUTIONS)
+
+
+def test_files_written(improved: tuple[dict[str, Any], Path]) -> None:
+    """--out writes the JSON (the same dict), a CSV with one row per distance, and the figure."""
+    result, out = improved
+    assert json.loads((out / "forecast.json").read_text()) == result
+    lines = (out / "forecast.csv").read_text().strip().splitlines()
+    assert len(lines) == 1 + len(result["distances"]) and lines[0].startswith("distance,qubits,")
+    assert (out / "forecast.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert b"<svg" in (out / "forecast.svg").read_bytes()[:2000]
+    assert (out / "store" / "results.sqlite").is_file()
+
+
+def test_qubits_and_round_duration(improved: tuple[dict[str, Any], Path]) -> None:
+    """2 d^2 - 1 qubits; a round of the improved device is 200 + 5 * 20 + 4 * 35 + 400 = 840 ns (common practice)."""
+    result, _ = improved
+    assert [r["qubits"] for r in result["distances"]] == [17, 49]
+    assert result["round_duration_us"] == pytest.approx(0.840, abs=1e-12)
+    for row in result["distances"]:
+        assert row["per_second_rate"] == pytest.approx(row["per_round_rate"] / 0.840e-6, rel=1e-12)
+
+
+def test_current_device_round_duration() -> None:
+    """The current device: reset 250 + 5 x 25 + 4 x 40 + measure 600 = 1135 ns (common practice)."""
+    from codebench.codes import get_code_family
+    from codebench.noise.device import DeviceNoise
+
+    model = DeviceNoise(1.0, device=load_device(CURRENT).canonical_json())
+    ideal = model.ideal_circuit(get_code_family("rotated_surface").layout(5, "Z"), 5, "Z")
+    assert model.round_duration_ns(ideal) == pytest.approx(1135.0)
+
+
+def test_direct_interval_is_wilson(improved: tuple[dict[str, Any], Path]) -> None:
+    """A direct estimate is k / n over d rounds with the Wilson interval mapped per round (Wilson 1927)."""
+    result, _ = improved
+    for row in result["distances"]:
+        assert row["method"] == "direct"
+        k, n, r = row["failures"], row["shots"], row["distance"]
+        low, high = wilson(k, n)
+        assert row["per_round_rate"] == pytest.approx(per_round(k / n, r), rel=1e-9)
+        assert row["low"] == pytest.approx(per_round(low, r), rel=1e-9)
+        assert row["high"] == pytest.approx(per_round(high, r), rel=1e-9)
+
+
+def test_lambda_of_two_distances(improved: tuple[dict[str, Any], Path]) -> None:
+    """Two distances: the fit is exact, Lambda = eps_3 / eps_5 (Acharya et al. 2025, Eq. 1); > 1 below threshold."""
+    result, _ = improved
+    eps3, eps5 = (r["per_round_rate"] for r in result["distances"])
+    assert result["lambda"] == pytest.approx(eps3 / eps5, rel=1e-9)
+    assert result["lambda_low"] > 1.0
+
+
+def test_targets_follow_the_lambda_model(improved: tuple[dict[str, Any], Path]) -> None:
+    """Smallest odd d >= 3 with C / Lambda^((d+1)/2) <= target (Acharya et al. 2025, Eq. 1), 2 d^2 - 1 qubits."""
+    result, _ = improved
+    c, lam = result["lambda_fit"]["C"], result["lambda"]
+    for target in result["targets"]:
+        d = next(d for d in range(3, 1002, 2) if c / lam ** ((d + 1) / 2) <= target["target"])
+        assert target["distance"] == d
+        assert target["qubits"] == 2 * d * d - 1
+        assert target["extrapolation"] is (d > 5)
+
+
+def test_break_even_matches_the_idle_formula(improved: tuple[dict[str, Any], Path]) -> None:
+    """p_idle over one round from T1, T2 (Tomita & Svore 2014, Eqs. 9-10); verdicts follow from it."""
+    result, _ = improved
+    be = result["break_even"]
+    expected = tomita_svore_idle(0.840, 200.0, 180.0)  # the improved device lists no qubits: its defaults
+    assert be["idle_error_best"] == pytest.approx(expected, rel=1e-12)
+    assert be["idle_error_median"] == pytest.approx(expected, rel=1e-12)
+    for row, entry in zip(result["distances"], be["distances"]):
+        eps = row["per_round_rate"]
+        assert entry["beats_best"] is (eps < expected)
+        want = "beats the best idle qubit" if eps < expected else "does not"
+        assert entry["verdict"] == want
+
+
+def test_break_even_best_and_median_over_listed_qubits() -> None:
+    """Over the current device's 17 listed qubits: the best and the median idle error (Tomita & Svore 2014)."""
+    device = load_device(CURRENT)
+    round_us = 1.135
+    values = sorted(tomita_svore_idle(round_us, q.t1_us, q.t2_us) for q in device.qubits.values())
+    assert len(values) == 17
+    assert min(values) == pytest.approx(idle_error(round_us, 140.0, 150.0), rel=1e-12)  # qubit m6
+    from codebench.forecast import _break_even
+
+    be = _break_even(device, round_us, [{"distance": 3, "per_round_rate": 7e-3, "high": 8e-3}])
+    assert be["best_qubit"] == "m6"
+    assert be["idle_error_best"] == pytest.approx(values[0], rel=1e-12)
+    assert be["idle_error_median"] == pytest.approx(values[8], rel=1e-12)
+    assert values[0] < 7e-3 < values[8]
+    assert be["distances"][0]["verdict"] == "beats the median idle qubit"
+
+
+# --- direct against extrapolated ----------------------------------------------------------------
+
+
+def _agree(a: dict[str, Any], b: dict[str, Any]) -> None:
+    assert a["low"] <= b["high"] and b["low"] <= a["high"], (a, b)
+    se_a = (math.log(a["high"]) - math.log(a["low"])) / (2 * Z95)
+    se_b = (math.log(b["high"]) - math.log(b["low"])) / (2 * Z95)
+    z = abs(math.log(a["per_round_rate"]) - math.log(b["per_round_rate"])) / math.hypot(se_a, se_b)
+    assert z <= Z95, (a["per_round_rate"], b["per_round_rate"], z)
+
+
+@pytest.mark.parametrize("device, budget", [(IMPROVED, 8.0), (GOAL, 12.0)], ids=["improved", "goal"])
+def test_direct_and_extrapolated_agree_at_d3(device: Path, budget: float) -> None:
+    """d = 3, where both are feasible: sampled at s = 1 and extrapolated from s = 2..5.7 agree (common practice)."""
+    direct = forecast(device, distances=(3, 5), method={3: "direct"}, budget_seconds=budget, workers=2)
+    extrapolated = forecast(device, distances=(3, 5), method={3: "extrapolated"}, budget_seconds=budget, workers=2)
+    a, b = direct["distances"][0], extrapolated["distances"][0]
+    assert a["method"] == "direct" and b["method"].startswith("extrapolated (power law over scales 2-5.65685")
+    assert b["scales"] == [2.0, 2.828427, 4.0, 5.656854]
+    _agree(a, b)
+    # The fitted exponent is near the number of faults of a minimum-weight logical error, (d + 1) / 2 = 2.
+    assert abs(b["exponent"] - 2.0) < 0.35
+
+
+@pytest.mark.slow
+def test_direct_and_extrapolated_agree_at_d5_goal() -> None:
+    """d = 5 on the goal device: direct needs minutes, extrapolated seconds; they agree (common practice)."""
+    direct = forecast(GOAL, distances=(3, 5), method={3: "direct", 5: "direct"}, budget_seconds=300, workers=2)
+    extrapolated = forecast(GOAL, distances=(3, 5), method={5: "extrapolated"}, budget_seconds=30, workers=2)
+    a, b = direct["distances"][1], extrapolated["distances"][1]
+    assert a["failures"] >= 100
+    _agree(a, b)
+
+
+# --- what-ifs ------------------------------------------------------------------------------------
+
+
+def test_improve_device_scales_every_entry() -> None:
+    """Defaults, per-qubit, per-pair and conditional readout values all scale; 1/T scales for T1/T2."""
+    base = load_device(CURRENT)
+    better = improve_device(base, {"gate_2q_error": 0.5, "t1_us": 0.5, "readout_error": 0.5})
+    assert better.gate_2q_error == pytest.approx(3.5e-3)
+    assert set(better.pairs) == set(base.pairs)
+    for pair, value in base.pairs.items():
+        assert better.pairs[pair] == pytest.approx(value / 2)
+    for qid, cal in base.qubits.items():
+        assert better.qubits[qid].t1_us == pytest.approx(2 * cal.t1_us)
+        assert better.qubits[qid].t2_us == pytest.approx(cal.t2_us)
+        assert better.qubits[qid].readout_error == pytest.approx(cal.readout_error / 2)
+    assert better.defaults.t1_us == pytest.approx(200.0)
+    assert parse_improve("gate_2q_error=0.5") == ("gate_2q_error", 0.5)
+    for bad in ("gate_2q_error", "t3_us=0.5", "gate_2q_error=0", "gate_2q_error=-1", "gate_2q_error=x"):
+        with pytest.raises(ConfigError):
+            parse_improve(bad)
+    with pytest.raises(DeviceFileError):
+        improve_device(base, {"readout_error": 40.0})
+
+
+def _cli_json(args: list[str], capsys: pytest.CaptureFixture[str]) -> dict[str, Any]:
+    assert main(args) == 0
+    out: dict[str, Any] = json.loads(capsys.readouterr().out)
+    return out
+
+
+def test_improve_lowers_the_logical_error(capsys: pytest.CaptureFixture[str]) -> None:
+    """Halving every two-qubit gate error lowers the per-round rate beyond both intervals (common practice)."""
+    common = ["forecast", str(CURRENT), "--distances", "3,5", "--budget-seconds", "10", "--workers", "2",
+              "--quiet", "--format", "json"]
+    base = _cli_json(common, capsys)
+    better = _cli_json(common + ["--improve", "gate_2q_error=0.5"], capsys)
+    assert better["improve"] == {"gate_2q_error": 0.5}
+    for a, b in zip(base["distances"], better["distances"]):
+        assert b["high"] < a["low"], (a, b)
+    assert better["lambda"] > base["lambda"]
+
+
+# --- budget --------------------------------------------------------------------------------------
+
+
+def test_budget_is_respected() -> None:
+    """A short budget on the goal device (every distance needs raised noise): within +20% of the budget."""
+    budget = 6.0
+    start = time.perf_counter()
+    result = forecast(GOAL, distances=(3, 5, 7), budget_seconds=budget, workers=2)
+    wall = time.perf_counter() - start
+    assert wall <= 1.2 * budget, wall
+    assert [r["distance"] for r in result["distances"]] == [3, 5, 7]
+    json.dumps(result, allow_nan=False)
+
+
+@pytest.mark.slow
+def test_bench_goal_current_device() -> None:
+    """scripts/bench_forecast.py's goal: d = 3, 5, 7 on the current device within 60 s, Lambda within +-15%."""
+    start = time.perf_counter()
+    result = forecast(CURRENT, distances=(3, 5, 7), budget_seconds=60, workers=2)
+    assert time.perf_counter() - start <= 60
+    lam = result["lambda"]
+    assert max(result["lambda_high"] - lam, lam - result["lambda_low"]) / lam <= 0.15
+
+
+# --- command-line errors -------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("extra", [
+    ["--distances", "3,4"],
+    ["--distances", "3"],
+    ["--distances", "a,b"],
+    ["--code", "toric"],
+    ["--decoder", "belief"],
+    ["--basis", "Y"],
+    ["--improve", "gate_2q_error"],
+    ["--improve", "t3_us=0.5"],
+    ["--improve", "gate_2q_error=0"],
+    ["--improve", "gate_2q_error=-2"],
+    ["--improve", "readout_error=40"],
+    ["--budget-seconds", "0"],
+    ["--budget-seconds", "-3"],
+    ["--budget-seconds", "soon"],
+    ["--target", "0.7"],
+    ["--workers", "0"],
+    ["--method", "guess"],
+])
+def test_cli_bad_input_exits_2_with_one_line(extra: list[str], capsys: pytest.CaptureFixture[str]) -> None:
+    """Bad input: exit status 2 and one line on standard error (the project's CLI rule)."""
+    assert main(["forecast", str(CURRENT), *extra]) == 2
+    captured = capsys.readouterr()
+    assert captured.out == ""
+    lines = captured.err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("codebench: "), captured.err
+
+
+def test_cli_bad_device_files(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """A missing file, a file that is not TOML, T2 > 2 T1, and --out naming a file: exit 2, one line."""
+    broken = tmp_path / "broken.toml"
+    broken.write_text("name = [\n")
+    bad = tmp_path / "bad.toml"
+    bad.write_text(CURRENT.read_text().replace("t2_us = 85.0", "t2_us = 250.0", 1))
+    not_a_folder = tmp_path / "file.txt"
+    not_a_folder.write_text("x")
+    for args in (["forecast", str(tmp_path / "missing.toml")], ["forecast", str(broken)], ["forecast", str(bad)],
+                 ["forecast", str(CURRENT), "--out", str(not_a_folder)]):
+        assert main(args) == 2
+        lines = capsys.readouterr().err.strip().splitlines()
+        assert len(lines) == 1 and lines[0].startswith("codebench: "), lines
