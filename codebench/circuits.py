@@ -51,12 +51,19 @@ class Layer:
         return frozenset(q for op in self.ops for q in op.targets)
 
 
+#: Fourth detector coordinate of a flag detector: (x, y, t, FLAG_MARK). Decoders find flags by it.
+FLAG_MARK = 1.0
+
+
 @dataclass(frozen=True)
 class Detector:
-    """A parity of measurement results that is deterministic without noise."""
+    """A parity of measurement results that is deterministic without noise.
+
+    ``coords`` is (x, y, t), or (x, y, t, FLAG_MARK) for a flag-qubit detector.
+    """
 
     records: tuple[int, ...]
-    coords: tuple[float, float, float]
+    coords: tuple[float, ...]
     after_layer: int
 
 
@@ -94,7 +101,13 @@ def _measure_gate(basis: Basis, gate_set: GateSet) -> str:
     return "M" if basis == "Z" or gate_set == "cz" else "MX"
 
 
-class _Builder:
+class LayerBuilder:
+    """Appends layers to an :class:`IdealCircuit` in its gate set and counts measurement records.
+
+    Code families with their own round structure (flag qubits, several halves
+    per round) build their circuits with it.
+    """
+
     def __init__(self, circuit: IdealCircuit) -> None:
         self.c = circuit
 
@@ -173,7 +186,7 @@ def build_memory(layout: Layout, rounds: int, basis: Basis, gate_set: GateSet = 
     if rounds < 1:
         raise ValueError(f"rounds must be >= 1; got {rounds}")
     circuit = IdealCircuit(layout=layout, basis=basis, rounds=rounds, gate_set=gate_set)
-    b = _Builder(circuit)
+    b = LayerBuilder(circuit)
     by_type: dict[Basis, list[int]] = {"Z": [], "X": []}
     for check in layout.checks:
         by_type[check.basis].append(check.measure)
