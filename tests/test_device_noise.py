@@ -7,7 +7,7 @@ Sources, beside each check:
 - Average gate infidelity r of a depolarizing channel: F_avg = (D F_pro + 1)/(D + 1)
   (Horodecki, Horodecki, Horodecki, PRA 60, 1888 (1999); Nielsen, Phys. Lett.
   A 303, 249 (2002)), so p = r (D + 1) / D.
-- Randomized-benchmarking decay: Magesan, Gambetta, Emerson, PRL 106, 180504 (2011).
+- Randomized-benchmarking decay: Magesan et al., PRL 106, 180504 (2011).
 - Symmetric readout flip = mean of the two conditional errors; one-line error
   messages naming key path, value and what is allowed: common practice.
 
@@ -237,7 +237,7 @@ def test_infidelity_to_depolarizing() -> None:
 
 
 def test_rb_decay_to_depolarizing() -> None:
-    # p = (1 - alpha)(D^2 - 1)/D^2 (Magesan, Gambetta, Emerson, PRL 106, 180504 (2011)): 3/4 and 15/16.
+    # p = (1 - alpha)(D^2 - 1)/D^2 (Magesan et al., PRL 106, 180504 (2011)): 3/4 and 15/16.
     assert depolarizing_from_rb_decay(0.99, 1) == pytest.approx(0.01 * 3 / 4, rel=1e-12)
     assert depolarizing_from_rb_decay(0.99, 2) == pytest.approx(0.01 * 15 / 16, rel=1e-12)
     assert depolarizing_from_rb_decay(1.0, 2) == 0.0

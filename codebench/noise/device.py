@@ -60,7 +60,7 @@ def depolarizing_from_infidelity(r: float, qubits: int) -> float:
 def depolarizing_from_rb_decay(alpha: float, qubits: int) -> float:
     """Depolarizing probability from a randomized-benchmarking decay parameter ``alpha``.
 
-    p = (1 - alpha)(D^2 - 1) / D^2 (Magesan, Gambetta, Emerson, PRL 106, 180504 (2011)).
+    p = (1 - alpha)(D^2 - 1) / D^2 (Magesan et al., PRL 106, 180504 (2011)).
     """
     dim2 = float(4**qubits)
     return (1 - alpha) * (dim2 - 1) / dim2
