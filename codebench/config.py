@@ -15,7 +15,10 @@ A sweep file is TOML::
     rounds = "d"
     noise = "si1000"
     p = { geomspace = [0.001, 0.004, 3] }
-    decoders = ["mwpm"]
+    decoders = ["mwpm", "bposd"]
+
+    [study.decoder_options.bposd]
+    osd_order = 10
 
 Every rejected value raises :class:`~codebench.errors.ConfigError` with a
 one-line message: the source, the key path (``study[1].distances[2]``), then
@@ -25,6 +28,7 @@ problem found is reported.
 
 from __future__ import annotations
 
+import json
 import os
 import re
 import tomllib
@@ -38,10 +42,12 @@ import numpy as np
 from codebench.codes import CODE_FAMILIES
 from codebench.codes.base import CodeFamily
 from codebench.codes.layout import Basis
-from codebench.decoders import DECODERS
+from codebench.decoders import DECODERS, get_decoder
+from codebench.decoders.base import Decoder
+from codebench.decoders.plugins import is_spec
 from codebench.engine.points import Point
 from codebench.engine.stopping import DEFAULT_BATCH_BYTES, Stopping
-from codebench.errors import ConfigError, not_allowed
+from codebench.errors import ConfigError, DecoderError, not_allowed
 from codebench.noise import NOISE_MODELS
 from codebench.noise.base import NoiseModel
 from codebench.noise.calibration import Device, load_device
@@ -70,6 +76,7 @@ _STUDY_KEYS = (
     "noise",
     "p",
     "decoders",
+    "decoder_options",
     "label",
     "noise_options",
     "device",
@@ -363,6 +370,7 @@ def _parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[P
     decoders = _parse_decoders(
         _require(study, "decoders", f"a non-empty list of names from {_names(DECODERS)}", at), at
     )
+    decoder_options = _parse_decoder_options(study.get("decoder_options", {}), decoders, at)
     label = study.get("label", str(index))
     if not isinstance(label, str) or not label:
         raise _Problem(not_allowed(f"{at}.label", label, "a non-empty string"))
@@ -381,6 +389,7 @@ def _parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[P
             p=p,
             decoder=decoder,
             noise_options=options,
+            decoder_options=decoder_options[decoder],
             study=label,
         )
         for d in distances
@@ -470,15 +479,54 @@ def _geomspace(spec: object, path: str, model: type[NoiseModel]) -> list[float]:
     return [float(f"{v:.{P_DIGITS}g}") for v in values]
 
 
-def _parse_decoders(value: object, at: str) -> list[str]:
+_DECODERS_ALLOWED = "a registered decoder name or 'package.module:ClassName' naming a Decoder subclass"
+
+
+def _parse_decoders(value: object, at: str) -> dict[str, type[Decoder]]:
+    """The study's decoders (registered names or plug-in specs), in order, with their classes."""
     path = f"{at}.decoders"
     allowed = _one_of(DECODERS)
     if not isinstance(value, list) or not value:
-        raise _Problem(not_allowed(path, value, f"a non-empty list of names from {_names(DECODERS)}"))
+        raise _Problem(not_allowed(path, value, f"a non-empty list of names from {_names(DECODERS)} "
+                                                "or 'package.module:ClassName' specs"))
+    decoders: dict[str, type[Decoder]] = {}
     for i, name in enumerate(value):
+        if isinstance(name, str) and is_spec(name):
+            try:
+                decoders[name] = get_decoder(name)
+            except DecoderError as exc:
+                raise _Problem(f"{path}[{i}] must be {_DECODERS_ALLOWED}; got {name!r}: {exc}.") from None
+            continue
         if not isinstance(name, str) or name not in DECODERS:
-            raise _Problem(not_allowed(f"{path}[{i}]", name, allowed))
-    return [str(name) for name in value]
+            raise _Problem(not_allowed(f"{path}[{i}]", name, f"{allowed} (or a plug-in 'package.module:ClassName')"))
+        decoders[name] = DECODERS[name]
+    return decoders
+
+
+def _parse_decoder_options(
+    value: object, decoders: dict[str, type[Decoder]], at: str
+) -> dict[str, tuple[tuple[str, Any], ...]]:
+    """Every option of every decoder of the study, checked, defaults filled in (they enter the point key)."""
+    path = f"{at}.decoder_options"
+    if not isinstance(value, dict):
+        raise _Problem(not_allowed(path, value, "a table of decoder name = { option = value }"))
+    for name in value:
+        if name not in decoders:
+            listed = ", ".join(repr(d) for d in decoders)
+            raise _Problem(f"{path}.{name} names a decoder this study does not use; {at}.decoders is [{listed}].")
+    chosen: dict[str, tuple[tuple[str, Any], ...]] = {}
+    for name, cls in decoders.items():
+        given = value.get(name, {})
+        where = f"{path}.{name}" if NAME_PATTERN.fullmatch(name) and "." not in name else f"{path}.{json.dumps(name)}"
+        if not isinstance(given, dict):
+            raise _Problem(not_allowed(where, given, f"a table of option = value for {cls.name}"))
+        _check_keys(given, where, tuple(cls.option_specs))
+        try:
+            resolved = cls.resolve_options(given, at=where)
+        except (TypeError, ValueError) as exc:
+            raise _Problem(str(exc)) from None
+        chosen[name] = tuple(sorted(resolved.items()))
+    return chosen
 
 
 def _parse_noise_options(

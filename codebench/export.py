@@ -22,7 +22,10 @@ COLUMNS = [
     "shots", "failures", "seconds", "failure_rate", "failure_rate_low", "failure_rate_high",
     "per_round_rate", "per_round_low", "per_round_high", "qubits", "detectors",
 ]
-EXTRA_COLUMNS = ["decode_seconds", "batches", "complete", "interval", "noise_options", "decoder_options", "key"]
+EXTRA_COLUMNS = [
+    "decode_seconds", "decode_us_per_round", "batches", "complete", "interval", "noise_options", "decoder_options",
+    "key",
+]
 
 
 def _options_column(options: dict[str, str]) -> str:
@@ -31,6 +34,27 @@ def _options_column(options: dict[str, str]) -> str:
         device = device_from_json(options["device"])
         options = {**options, "device": f"{device.name} [{device.digest()}]"}
     return json.dumps(options, sort_keys=True)
+
+
+def decode_us_per_round(decode_seconds: float, shots: int, rounds: int) -> float:
+    """Decoding wall time per shot per round, in microseconds, on one worker (NaN without shots).
+
+    >>> decode_us_per_round(2.0, 1000, 5)
+    400.0
+    """
+    if shots <= 0 or rounds <= 0:
+        return float("nan")
+    return decode_seconds / shots / rounds * 1e6
+
+
+def speed_verdict(decode_us: float, round_us: float) -> str:
+    """``keeps up`` when a round decodes in at most the round's duration, else ``falls behind by Nx``.
+
+    >>> speed_verdict(0.5, 1.0), speed_verdict(3.0, 1.2)
+    ('keeps up', 'falls behind by 2.5x')
+    """
+    ratio = decode_us / round_us
+    return "keeps up" if ratio <= 1.0 else f"falls behind by {ratio:.3g}x"
 
 
 def _per_round(total: float, rounds: int) -> float:
@@ -45,7 +69,9 @@ def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
     ``interval`` column); the
     per-round columns map the rate and both interval ends through
     eps = (1 - (1 - 2 P)^(1/rounds)) / 2, which is monotone, so the interval
-    carries over exactly.
+    carries over exactly. ``decode_us_per_round`` is ``decode_seconds`` per
+    shot per round in microseconds: the decoder's wall time on one worker,
+    to compare with the duration of a syndrome round.
     """
     stopping = store.stopping()
     stored = store.all_batches()
@@ -64,7 +90,9 @@ def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
             "per_round_rate": _per_round(rate, point.rounds), "per_round_low": _per_round(low, point.rounds),
             "per_round_high": _per_round(high, point.rounds),
             "qubits": member.qubits, "detectors": member.detectors,
-            "decode_seconds": t.decode_seconds, "batches": t.batches, "complete": t.finished, "interval": interval,
+            "decode_seconds": t.decode_seconds,
+            "decode_us_per_round": decode_us_per_round(t.decode_seconds, t.shots, point.rounds),
+            "batches": t.batches, "complete": t.finished, "interval": interval,
             "noise_options": _options_column(dict(point.noise_options)),
             "decoder_options": json.dumps(dict(point.decoder_options), sort_keys=True),
             "key": member.key,

@@ -84,7 +84,10 @@ flagged as an extrapolation beyond the largest distance forecast.
 Round duration: :meth:`codebench.noise.device.DeviceNoise.round_duration_ns`
 of the memory circuit (one syndrome round: reset, basis changes, two-qubit
 layers, measurement). The logical error per second is eps / round duration
-(treating the per-round flips as a rate, fine for eps << 1).
+(treating the per-round flips as a rate, fine for eps << 1). Decoder speed:
+per distance, ``decode_us_per_round`` is the decoding wall time per shot per
+round on one worker at scale 1 (the results' ``decode_seconds``), and
+``keeps_up`` says whether it is at most the round duration.
 
 Break-even: the per-round logical error against the error of one idle
 physical qubit over one round, p_idle = px + py + pz of the Pauli-twirled
@@ -122,6 +125,7 @@ from codebench.decoders import DECODERS
 from codebench.engine.executors import Executor, make_executor
 from codebench.engine.stopping import DEFAULT_BATCH_BYTES, FIRST_BATCH, batch_cap, batch_sizes
 from codebench.engine.worker import BatchResult, BatchTask
+from codebench.export import decode_us_per_round
 from codebench.errors import ConfigError, DeviceFileError, not_allowed
 from codebench.noise.calibration import Device, load_device, parse_device
 from codebench.noise.device import (
@@ -368,6 +372,7 @@ class _Sample:
     failures: int
     seconds: float
     detectors: int
+    decode_seconds: float = 0.0
 
     @property
     def cost(self) -> float:
@@ -421,7 +426,8 @@ class _Sampler:
             if int(row["shots"]) == 0:
                 continue
             sample = _Sample(int(row["distance"]), float(row["p"]), int(row["rounds"]), int(row["shots"]),
-                             int(row["failures"]), float(row["seconds"]), int(row["detectors"]))
+                             int(row["failures"]), float(row["seconds"]), int(row["detectors"]),
+                             float(row["decode_seconds"]))
             key = (sample.distance, sample.scale)
             old = self.samples.get(key)
             if old is None or sample.shots >= old.shots:
@@ -806,6 +812,12 @@ def _run_forecast(start: float, dev: Device, device: Any, improve: dict[str, flo
         row["per_second_rate"] = None if row["per_round_rate"] is None else row["per_round_rate"] * per_s
         row["per_second_low"] = None if row["low"] is None else row["low"] * per_s
         row["per_second_high"] = None if row["high"] is None else row["high"] * per_s
+        # Decoder speed at the device's own noise (scale 1), on one worker, against the round duration.
+        at_one = sampler.samples.get((row["distance"], 1.0))
+        row["decode_us_per_round"] = (None if at_one is None or at_one.shots == 0 else
+                                      decode_us_per_round(at_one.decode_seconds, at_one.shots, at_one.rounds))
+        row["keeps_up"] = (None if row["decode_us_per_round"] is None
+                           else bool(row["decode_us_per_round"] <= row["round_duration_us"]))
 
     fit = _lambda_fit(rows)
     if fit is None:

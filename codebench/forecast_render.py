@@ -30,12 +30,15 @@ import matplotlib
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from codebench.export import speed_verdict
+
 __all__ = ["CSV_COLUMNS", "forecast_table", "forecast_figure", "write_outputs"]
 
 CSV_COLUMNS = [
     "distance", "qubits", "rounds", "per_round_rate", "low", "high", "method", "method_kind",
     "per_second_rate", "per_second_low", "per_second_high", "round_duration_us", "shots", "failures",
     "scales", "exponent", "exponent_se", "break_even_verdict", "beats_best_idle", "beats_median_idle",
+    "decode_us_per_round", "keeps_up",
 ]
 DPI = 150
 _COLOURS = ("#1b6ca8", "#d1495b", "#2e8b57", "#8a5a00", "#6a4c93", "#00798c", "#c05a00", "#3d3d3d")
@@ -116,6 +119,11 @@ def forecast_table(result: dict[str, Any]) -> str:
     lines.append(f"Round duration: {result['round_duration_us']:.3f} us "
                  f"({1e6 / result['round_duration_us']:,.0f} rounds per second); per-second rates above are "
                  "eps / round duration.")
+    speeds = [r for r in result["distances"] if r.get("decode_us_per_round") is not None]
+    if speeds:
+        parts = [f"d = {r['distance']}: {r['decode_us_per_round']:.3g} us, "
+                 f"{speed_verdict(r['decode_us_per_round'], r['round_duration_us'])}" for r in speeds]
+        lines.append(f"Decoder {result['decoder']} per round on one worker: " + "; ".join(parts) + ".")
     be = result["break_even"]
     lines.append("")
     lines.append("Break-even: logical error per round against one idle physical qubit over one round "

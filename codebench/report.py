@@ -31,6 +31,7 @@ import pandas as pd
 
 from codebench.api import STORE_NAME, load_results, versions
 from codebench.errors import CodebenchError
+from codebench.export import speed_verdict
 from codebench.figures import FigureFile, chosen_threshold, render_figures
 from codebench.store import Store
 
@@ -196,6 +197,10 @@ class _Report:
     @property
     def title(self) -> str:
         return self.run.name or self.folder.name or "sweep"
+
+    def speed(self) -> Table:
+        """The decoder-speed table (round durations read from the store for device noise)."""
+        return _speed_table(self.frame, round_durations_us(self.folder, self.frame))
 
     def facts(self) -> list[tuple[str, str]]:
         """Key numbers of the run, in display order."""
@@ -447,6 +452,87 @@ def _quantity(value: Any) -> str:
     return names.get(str(value), str(value)) if value is not None else "\u2013"
 
 
+# decoder speed -------------------------------------------------------------
+
+
+def round_durations_us(folder: Path, frame: pd.DataFrame) -> dict[str, float]:
+    """Duration of one syndrome round, in microseconds, of every device-noise point (by key) in ``folder``'s store.
+
+    From :meth:`codebench.noise.device.DeviceNoise.round_duration_ns` of the point's own circuit; points of
+    other noise models have no duration and are left out.
+    """
+    path = Path(folder) / STORE_NAME
+    if frame.empty or "noise" not in frame.columns or not (frame["noise"] == "device").any() or not path.exists():
+        return {}
+    from codebench.codes import get_code_family
+    from codebench.noise.device import DeviceNoise
+
+    wanted = set(frame.loc[frame["noise"] == "device", "key"].astype(str)) if "key" in frame.columns else set()
+    out: dict[str, float] = {}
+    try:
+        with Store(path, create=False) as store:
+            members = store.members()
+    except CodebenchError:
+        return {}
+    for member, _ in members:
+        point = member.point
+        if member.key not in wanted or point.noise != DeviceNoise.name:
+            continue
+        try:
+            model = DeviceNoise(point.p, **dict(point.noise_options))
+            ideal = get_code_family(point.code).ideal_circuit(point.distance, point.rounds, point.basis,
+                                                              model.circuit_gate_set())
+            out[member.key] = model.round_duration_ns(ideal) / 1000.0
+        except (CodebenchError, KeyError, ValueError):
+            continue
+    return out
+
+
+def _speed_table(frame: pd.DataFrame, durations: dict[str, float]) -> Table:
+    table = Table(
+        "decoder-speed", "Decoder speed",
+        "Decoding wall time per shot per round on one worker (decode_seconds / shots / rounds), per decoder "
+        "and distance: the mean over the points' shots and the slowest point. With device noise it is "
+        "compared with the device's round duration: the decoder keeps up when it decodes a round in at most "
+        "the time the round takes (one core, no pipelining across workers; a real-time decoder must also "
+        "keep its latency bounded).",
+        ["decoder", "code", "noise", "d", "p", "shots", "\u00b5s / round", "slowest point", "round (\u00b5s)",
+         "verdict"],
+        numeric={3, 5, 6, 7, 8}, empty="no decode timings")
+    if frame.empty or "decode_seconds" not in frame.columns:
+        return table
+    groups: dict[tuple[Any, ...], list[dict[str, Any]]] = {}
+    for item in _row_dicts(frame):
+        shots = _finite(item.get("shots")) or 0.0
+        if shots <= 0:
+            continue
+        device = str(item.get("noise")) == "device"
+        round_us = durations.get(str(item.get("key"))) if device else None
+        # Device points are compared one scale at a time; other points pool over p.
+        key = (str(item.get("decoder", "")), str(item.get("code", "")), str(item.get("noise", "")),
+               int(item.get("distance") or 0), str(item.get("noise_options", "")) if device else "",
+               float(item.get("p") or 0.0) if device else None, round_us)
+        groups.setdefault(key, []).append(item)
+    for key in sorted(groups, key=lambda k: (k[0], k[1], k[2], k[4], k[3], k[5] or 0.0)):
+        decoder, code, noise, distance, _, _, round_us = key
+        items = groups[key]
+        seconds = sum(_finite(i.get("decode_seconds")) or 0.0 for i in items)
+        shot_rounds = sum((_finite(i.get("shots")) or 0.0) * (_finite(i.get("rounds")) or 0.0) for i in items)
+        mean = seconds / shot_rounds * 1e6 if shot_rounds else None
+        slowest = max((_finite(i.get("decode_us_per_round")) for i in items), key=lambda v: v or 0.0,
+                      default=None)
+        rates = sorted({float(i["p"]) for i in items if _finite(i.get("p")) is not None})
+        p_text = _g(rates[0]) if len(rates) == 1 else f"{_g(rates[0])}\u2013{_g(rates[-1])}" if rates else "\u2013"
+        verdict: Cell = "\u2013"
+        if round_us is not None and mean is not None and round_us > 0:
+            text = speed_verdict(mean, round_us)
+            verdict = Badge(text, "ok" if text == "keeps up" else "bad")
+        table.rows.append([decoder, code, noise, str(distance), p_text,
+                           _int(sum(_finite(i.get("shots")) or 0.0 for i in items)), _g(mean, 3), _g(slowest, 3),
+                           _g(round_us, 4) if round_us is not None else "\u2013", verdict])
+    return table
+
+
 # cautions ------------------------------------------------------------------
 
 
@@ -595,6 +681,7 @@ table.facts th { width: 190px; background: none; color: var(--muted); font-weigh
          white-space: nowrap; }
 .badge.warn { background: #fbe2b5; color: #6d4100; }
 .badge.bad { background: #f6c9c5; color: #7a1f1f; }
+.badge.ok { background: #d3ece9; color: #0d5656; }
 pre { background: #1f2430; color: #ebe8df; padding: 14px 16px; border-radius: 6px; overflow-x: auto;
       font: 13px/1.45 ui-monospace, monospace; }
 ul.notes { margin: 0; padding-left: 20px; }
@@ -720,6 +807,7 @@ def _html_page(report: _Report) -> str:
                   else '<p class="intro">No notes: every fit that applies was made.</p>')
     cautions = "".join(_html_caution(c) for c in _cautions(report))
     results = _results_table(report.frame)
+    speed = report.speed()
     settings = report.analysis.get("settings") or {}
     settings_text = ""
     if settings:
@@ -733,6 +821,7 @@ def _html_page(report: _Report) -> str:
         ("cautions", "Cautions", cautions),
         ("fits", "Fits", f'<p class="intro">{_esc(settings_text)}</p>{fits}'),
         ("notes", "Notes on the fits", notes_html),
+        ("speed", speed.title, f'<p class="intro">{_esc(speed.intro)}</p>{_html_table(speed)}'),
         ("results", "Results", f'<p class="intro">{_esc(results.intro)}</p>{_html_table(results)}'),
     ]
     nav = "".join(f'<a href="#{key}">{_esc(title)}</a>' for key, title, _ in sections)
@@ -788,6 +877,8 @@ def _markdown(report: _Report) -> str:
     out += ["## Notes on the fits", ""]
     notes = [str(n) for n in report.analysis.get("notes") or []]
     out += [f"- {n}" for n in notes] if notes else ["_No notes._"]
+    speed = report.speed()
+    out += ["", f"## {speed.title}", "", speed.intro, "", _md_table(speed)]
     out += ["", "## Figures", ""]
     if report.figures:
         for fig in report.figures:

@@ -9,12 +9,9 @@ pickling for shipping to workers, inputs untouched, seeded reproducibility).
 
 from __future__ import annotations
 
-import pickle
 from pathlib import Path
 
-import numpy as np
 import pytest
-import stim
 
 from codebench.circuits import build_memory
 from codebench.codes import CODE_FAMILIES
@@ -25,6 +22,7 @@ from codebench.engine.worker import BatchTask, batch_seed
 from codebench.noise import NOISE_MODELS
 from codebench.noise.base import NoiseModel
 from codebench.noise.calibration import load_device
+from codebench.testing import decoder_checks, run_decoder_check
 
 REPO = Path(__file__).parents[1]
 #: The device the `device` noise model is checked with (a fictional example shipped in configs/devices).
@@ -46,69 +44,12 @@ def _small_distance(family_name: str) -> int:
     return next(d for d in range(2, 12) if family.distance_problem(d) is None)
 
 
-def _events(circuit: stim.Circuit, shots: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
-    sampler = circuit.compile_detector_sampler(seed=seed)
-    det, obs = sampler.sample(shots, separate_observables=True, bit_packed=True)
-    return det, obs
-
-
-@pytest.fixture(scope="module")
-def surface_circuit() -> stim.Circuit:
-    return Point("rotated_surface", 3, 3, "Z", "circuit_depolarizing", 0.01, "mwpm").circuit()
-
-
+@pytest.mark.parametrize("check", decoder_checks())
 @pytest.mark.parametrize("name", sorted(DECODERS))
-class TestDecoderConformance:
-    def _decoder(self, name: str, circuit: stim.Circuit):  # type: ignore[no-untyped-def]
-        cls = DECODERS[name]
-        decoder = cls()
-        decoder.compile(circuit.detector_error_model(decompose_errors=cls.wants_decomposed))
-        return decoder
-
-    def test_batch_equals_one_by_one(self, name: str, surface_circuit: stim.Circuit) -> None:
-        decoder = self._decoder(name, surface_circuit)
-        det, _ = _events(surface_circuit, 200, seed=1)
-        batch = decoder.decode_batch(det, bit_packed=True)
-        singles = np.concatenate([decoder.decode_batch(det[i : i + 1], bit_packed=True) for i in range(len(det))])
-        assert np.array_equal(batch, singles)
-
-    def test_packed_and_unpacked_agree(self, name: str, surface_circuit: stim.Circuit) -> None:
-        decoder = self._decoder(name, surface_circuit)
-        det, _ = _events(surface_circuit, 200, seed=2)
-        unpacked = np.unpackbits(det, axis=1, bitorder="little")[:, : surface_circuit.num_detectors].astype(bool)
-        packed_pred = decoder.decode_batch(det, bit_packed=True)
-        plain_pred = decoder.decode_batch(unpacked, bit_packed=False)
-        repacked = np.packbits(plain_pred, axis=1, bitorder="little")
-        assert np.array_equal(packed_pred, repacked)
-
-    def test_shot_order_does_not_matter(self, name: str, surface_circuit: stim.Circuit) -> None:
-        decoder = self._decoder(name, surface_circuit)
-        det, _ = _events(surface_circuit, 300, seed=3)
-        order = np.random.default_rng(0).permutation(len(det))
-        assert np.array_equal(decoder.decode_batch(det)[order], decoder.decode_batch(det[order]))
-
-    def test_input_not_mutated(self, name: str, surface_circuit: stim.Circuit) -> None:
-        decoder = self._decoder(name, surface_circuit)
-        det, _ = _events(surface_circuit, 100, seed=4)
-        copy = det.copy()
-        decoder.decode_batch(det)
-        assert np.array_equal(det, copy)
-
-    def test_pickle_round_trip_then_compile(self, name: str, surface_circuit: stim.Circuit) -> None:
-        decoder = self._decoder(name, surface_circuit)
-        clone = pickle.loads(pickle.dumps(decoder))
-        assert clone.get_params() == decoder.get_params()
-        clone.compile(surface_circuit.detector_error_model(decompose_errors=DECODERS[name].wants_decomposed))
-        det, _ = _events(surface_circuit, 200, seed=5)
-        assert np.array_equal(clone.decode_batch(det), decoder.decode_batch(det))
-
-    def test_decodes_better_than_guessing(self, name: str, surface_circuit: stim.Circuit) -> None:
-        # At p = 1% on d = 3 a working decoder fails in a few percent of shots; predicting
-        # "no flip" fails far more often (common practice sanity bound).
-        decoder = self._decoder(name, surface_circuit)
-        det, obs = _events(surface_circuit, 4000, seed=6)
-        failures = np.any(decoder.decode_batch(det) != obs, axis=1).mean()
-        assert failures < 0.5 * obs.any(axis=1).mean()
+def test_decoder_conformance(name: str, check: str) -> None:
+    # The importable suite (codebench.testing): batch equals one-by-one, shot order, pickling,
+    # inputs untouched, seeded reproducibility through run_batch, better than guessing.
+    run_decoder_check(check, name)
 
 
 @pytest.mark.parametrize("name", sorted(NOISE_MODELS))

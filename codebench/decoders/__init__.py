@@ -1,9 +1,11 @@
-"""Decoders by name."""
+"""Decoders by name, or by ``"package.module:ClassName"`` for a user's own."""
 
 from __future__ import annotations
 
-from codebench.decoders.base import Decoder
+from codebench.decoders.base import Decoder, OptionSpec
+from codebench.decoders.belief import BeliefLSD, BeliefOSD
 from codebench.decoders.matching import CorrelatedMatching, Matching
+from codebench.decoders.plugins import is_spec, load_decoder
 
 DECODERS: dict[str, type[Decoder]] = {}
 
@@ -14,11 +16,17 @@ def register(decoder: type[Decoder]) -> None:
 
 
 def get_decoder(name: str) -> type[Decoder]:
-    """The registered decoder class called ``name``; ``KeyError`` if none."""
+    """The decoder class for a registered ``name`` or a plug-in spec ``"package.module:ClassName"``.
+
+    ``KeyError`` for an unknown name; :class:`~codebench.errors.DecoderError`
+    for a spec that does not load (see :func:`~codebench.decoders.plugins.load_decoder`).
+    """
+    if is_spec(name):
+        return load_decoder(name)
     return DECODERS[name]
 
 
-for _decoder in (Matching, CorrelatedMatching):
+for _decoder in (Matching, CorrelatedMatching, BeliefOSD, BeliefLSD):
     register(_decoder)
 
-__all__ = ["Decoder", "DECODERS", "get_decoder", "register"]
+__all__ = ["Decoder", "DECODERS", "OptionSpec", "get_decoder", "register"]
