@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from codebench.codes.base import CodeFamily
+from codebench.codes.heavy_hex import HeavyHex
 from codebench.codes.layout import Basis, Check, Layout, Role
 from codebench.codes.repetition import Repetition
 from codebench.codes.rotated_surface import RotatedSurface
@@ -22,5 +23,6 @@ def get_code_family(name: str) -> CodeFamily:
 
 register(Repetition())
 register(RotatedSurface())
+register(HeavyHex())
 
 __all__ = ["Basis", "Check", "CodeFamily", "Layout", "Role", "CODE_FAMILIES", "get_code_family", "register"]

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from codebench.decoders.base import Decoder, OptionSpec
 from codebench.decoders.belief import BeliefLSD, BeliefOSD
+from codebench.decoders.flagged import FlagMatching
 from codebench.decoders.matching import CorrelatedMatching, Matching
 from codebench.decoders.plugins import is_spec, load_decoder
 
@@ -26,7 +27,7 @@ def get_decoder(name: str) -> type[Decoder]:
     return DECODERS[name]
 
 
-for _decoder in (Matching, CorrelatedMatching, BeliefOSD, BeliefLSD):
+for _decoder in (Matching, CorrelatedMatching, BeliefOSD, BeliefLSD, FlagMatching):
     register(_decoder)
 
 __all__ = ["Decoder", "DECODERS", "OptionSpec", "get_decoder", "register"]
