@@ -1,8 +1,9 @@
 """codebench: can this processor hold a useful logical qubit?
 
-Noisy memory experiments for repetition and rotated-surface codes, sampled
-with stim, decoded by matching, stored resumably, and summarised with
-binomial intervals. See README.md for the command line.
+Noisy memory experiments for repetition, rotated-surface and heavy-hexagon
+codes under standard or device-derived noise, sampled with stim, decoded by
+matching or belief propagation, stored resumably, and fitted for thresholds,
+Lambda and projections. See README.md for the command line.
 """
 
 from __future__ import annotations
