@@ -226,12 +226,12 @@ def build_memory(layout: Layout, rounds: int, basis: Basis, gate_set: GateSet = 
         circuit.detectors.append(Detector(records, (x, y, float(rounds)), len(circuit.layers) - 1))
     circuit.observable = tuple(data_record[q] for q in layout.logical(basis))
     if gate_set == "cz":
-        _reindex_after_merge(circuit)
+        merge_hadamard_layers(circuit)
     return circuit
 
 
-def _reindex_after_merge(circuit: IdealCircuit) -> None:
-    """Merge H layers and move each detector's anchor to its measure layer."""
+def merge_hadamard_layers(circuit: IdealCircuit) -> None:
+    """Finish a cz-gate-set circuit: merge adjacent H layers and move each detector's anchor along."""
     anchors = [circuit.layers[det.after_layer] for det in circuit.detectors]
     circuit.layers = _merge_single_qubit_layers(circuit.layers)
     position = {id(layer): i for i, layer in enumerate(circuit.layers)}

@@ -265,7 +265,7 @@ def build_heavy_hex_memory(
     the flag's position.
     """
     # Imported here: codebench.circuits imports codebench.codes, which registers this family.
-    from codebench.circuits import FLAG_MARK, Detector, IdealCircuit, LayerBuilder, Op, _reindex_after_merge
+    from codebench.circuits import FLAG_MARK, Detector, IdealCircuit, LayerBuilder, Op, merge_hadamard_layers
 
     if rounds < 1:
         raise ValueError(f"rounds must be >= 1; got {rounds}")
@@ -322,5 +322,5 @@ def build_heavy_hex_memory(
     logical = s.logical_z if basis == "Z" else s.logical_x
     circuit.observable = tuple(data_record[q] for q in logical)
     if gate_set == "cz":
-        _reindex_after_merge(circuit)
+        merge_hadamard_layers(circuit)
     return circuit
