@@ -14,7 +14,6 @@ Monte Carlo checks use fixed seeds and 99.9% intervals.
 
 from __future__ import annotations
 
-import itertools
 import json
 import math
 import pickle
@@ -29,7 +28,6 @@ from scipy.stats import binomtest
 
 import plugin_decoder
 from codebench.api import run_sweep
-from codebench.codes import get_code_family
 from codebench.config import load_sweep, parse_sweep
 from codebench.decoders import DECODERS, get_decoder
 from codebench.decoders.base import Decoder, OptionSpec
@@ -40,6 +38,7 @@ from codebench.errors import ConfigError, DecoderError
 from codebench.export import decode_us_per_round, speed_verdict
 from codebench.report import _speed_table, write_report
 from codebench.testing import check_decoder, decoder_checks, run_decoder_check
+from test_code_capacity_exact import exact_bounds
 
 ALPHA = 0.001  # two-sided: 99.9% intervals
 NEVER = 10**9  # failure_target large enough that the shot budget decides
@@ -68,28 +67,9 @@ def sweep(tmp_path: Path, name: str, studies: list[dict[str, Any]], shots: int, 
 
 
 def surface_d3_exact(basis: str, p: float) -> float:
-    lay = get_code_family("rotated_surface").layout(3, basis)
-    index = {q: i for i, q in enumerate(lay.data_qubits)}
-    checks = lay.checks_of(basis)
-    h = np.zeros((len(checks), 9), dtype=np.int64)
-    for r, c in enumerate(checks):
-        for q in c.support:
-            h[r, index[q]] = 1
-    logical = np.zeros(9, dtype=np.int64)
-    for q in lay.logical(basis):
-        logical[index[q]] = 1
-    errors = np.array(list(itertools.product((0, 1), repeat=9)), dtype=np.int64)
-    syndrome = ((errors @ h.T) % 2) @ (1 << np.arange(len(checks)))
-    cls = (errors @ logical) % 2
-    weight = errors.sum(axis=1)
-    prob = p**weight * (1 - p) ** (9 - weight)
-    fail = 0.0
-    for s in np.unique(syndrome):
-        m = syndrome == s
-        chosen = cls[m & (weight == weight[m].min())]
-        assert len(set(chosen.tolist())) == 1  # no tie between logical classes
-        fail += float(prob[m & (cls != chosen[0])].sum())
-    return fail
+    best, worst = exact_bounds(basis, p)
+    assert best == worst  # no tie between logical classes at d = 3
+    return best
 
 
 def repetition_exact(d: int, p: float) -> float:
