@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import platform
+import sys
 
 from importlib import metadata
 from pathlib import Path
@@ -12,12 +13,14 @@ from typing import Any, Mapping
 import pandas as pd
 
 from codebench.config import Sweep, load_sweep, parse_sweep
+from codebench.engine.cluster import ClusterSpec, scheduler_address
 from codebench.engine.executors import Executor, make_executor
 from codebench.engine.progress import Progress
 from codebench.engine.runner import RunPlan, StopSignals, describe, execute
 from codebench.errors import CodebenchError, ConfigError, StoreError, not_allowed
 from codebench.export import results_frame, write_csv
-from codebench.store import Store
+from codebench.store import Store, StoredPoint
+from codebench.store_lock import RunLock
 
 STORE_NAME = "results.sqlite"
 CSV_NAME = "results.csv"
@@ -51,6 +54,7 @@ def run_sweep(
     workers: int | None = None,
     executor: Executor | None = None,
     progress: bool = True,
+    scheduler: str | None = None,
 ) -> pd.DataFrame:
     """Run (or resume) a sweep and return its results table.
 
@@ -62,12 +66,16 @@ def run_sweep(
         Output folder (default ``results/<name>``); holds ``results.sqlite``
         and ``results.csv``. A rerun on the same folder resumes.
     workers : int, optional
-        Local worker processes (default: all cores). Ignored when
-        ``executor`` is given.
+        Local worker processes (default: all cores). Given explicitly, it
+        runs locally even when the sweep has a ``[cluster]`` section.
     executor : Executor, optional
-        Where batches run (for example an in-process executor in tests).
+        Where batches run (for example an in-process executor in tests);
+        overrides ``workers``, ``scheduler`` and ``[cluster]``.
     progress : bool
         Show the progress line on standard error.
+    scheduler : str, optional
+        Address of a running Dask scheduler (``tcp://host:8786``); overrides
+        the sweep's ``[cluster]`` section. The counts are those of a local run.
 
     Examples
     --------
@@ -80,11 +88,24 @@ def run_sweep(
     2000
     """
     with StopSignals():
-        return _run(as_sweep(config), out, workers, executor, progress)
+        sweep = as_sweep(config)
+        return _run(sweep, out, executor, progress, _cluster_choice(sweep, workers, scheduler))
 
 
-def _run(sweep: Sweep, out: str | Path | None, workers: int | None, executor: Executor | None,
-         progress: bool) -> pd.DataFrame:
+def _cluster_choice(sweep: Sweep, workers: int | None, scheduler: str | None) -> tuple[int | None, ClusterSpec | None]:
+    """Local workers or a Dask cluster: the explicit argument wins over the sweep's ``[cluster]``."""
+    if scheduler is not None:
+        if workers is not None:
+            raise ConfigError(not_allowed("--workers", workers, "absent when --scheduler is given (the cluster's "
+                                          "workers run the batches)"))
+        return None, ClusterSpec(scheduler=scheduler_address(scheduler, "--scheduler"))
+    if workers is not None:
+        return workers, None
+    return None, sweep.cluster
+
+
+def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progress: bool,
+         where: tuple[int | None, ClusterSpec | None]) -> pd.DataFrame:
     folder = Path(out) if out is not None else sweep.output_dir_default
     # Everything that can fail on bad input happens before the folder is touched.
     members = [(describe(point, sweep.seed, sweep.batch_bytes), point.study) for point in sweep.points]
@@ -92,10 +113,18 @@ def _run(sweep: Sweep, out: str | Path | None, workers: int | None, executor: Ex
         raise ConfigError(not_allowed("--out", str(folder), "a folder (or a path that does not exist yet)"))
     store_path = folder / STORE_NAME
     if store_path.exists():
-        Store(store_path).close()  # refuses a foreign file before anything is created
-    run_executor = executor if executor is not None else make_executor(workers)
+        Store(store_path).close()  # refuses a foreign or damaged file before anything is created
+    with RunLock(folder):  # one writer per folder; refused while another live run holds it
+        run_executor = executor if executor is not None else make_executor(*where)
+        if progress and run_executor.summary():
+            print(f"{sweep.name}: running on {run_executor.summary()}", file=sys.stderr)
+        return _record(sweep, folder, members, run_executor, progress)
+
+
+def _record(sweep: Sweep, folder: Path, members: list[tuple[StoredPoint, str]], run_executor: Executor,
+            progress: bool) -> pd.DataFrame:
     parallelism = max(1, run_executor.capacity // 2)
-    with Store(store_path) as store:
+    with Store(folder / STORE_NAME) as store:
         meta = {"name": sweep.name, "seed": str(sweep.seed), "sweep_text": sweep.source_text,
                 "sweep_source": sweep.source, "versions": json.dumps(versions())}
         store.begin_run(sweep.stopping, members, meta)

@@ -37,6 +37,15 @@ def _positive_int(name: str) -> Callable[[str], int]:
     return parse
 
 
+def _address(text: str) -> str:
+    from codebench.engine.cluster import scheduler_address
+
+    try:
+        return scheduler_address(text, "--scheduler")
+    except CodebenchError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+
+
 def cmd_sweep(args: argparse.Namespace) -> int:
     from codebench.api import run_sweep
     from codebench.config import load_sweep
@@ -44,7 +53,7 @@ def cmd_sweep(args: argparse.Namespace) -> int:
 
     sweep = load_sweep(args.config)
     out = Path(args.out) if args.out else sweep.output_dir_default
-    frame = run_sweep(sweep, out=out, workers=args.workers, progress=not args.quiet)
+    frame = run_sweep(sweep, out=out, workers=args.workers, progress=not args.quiet, scheduler=args.scheduler)
     print(summary_table(frame))
     print(f"\nwrote {out / 'results.csv'} and {out / 'results.sqlite'}")
     return EXIT_OK
@@ -191,7 +200,11 @@ def build_parser() -> argparse.ArgumentParser:
     sweep = sub.add_parser("sweep", help="run or resume a sweep file")
     sweep.add_argument("config", help="sweep file (TOML)")
     sweep.add_argument("--out", help="output folder (default: results/<name>)")
-    sweep.add_argument("--workers", type=_positive_int("--workers"), help="local worker processes (default: all cores)")
+    sweep.add_argument("--workers", type=_positive_int("--workers"),
+                       help="local worker processes (default: all cores; given, it overrides a [cluster] section)")
+    sweep.add_argument("--scheduler", metavar="ADDRESS", type=_address,
+                       help="run on the Dask cluster of this scheduler, e.g. tcp://head-node:8786 "
+                            "(overrides a [cluster] section)")
     sweep.add_argument("--quiet", action="store_true", help="no progress line")
     sweep.set_defaults(func=cmd_sweep)
 

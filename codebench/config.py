@@ -45,6 +45,7 @@ from codebench.codes.layout import Basis
 from codebench.decoders import DECODERS, get_decoder
 from codebench.decoders.base import Decoder
 from codebench.decoders.plugins import is_spec
+from codebench.engine.cluster import ClusterSpec, parse_cluster
 from codebench.engine.points import Point
 from codebench.engine.stopping import DEFAULT_BATCH_BYTES, Stopping
 from codebench.errors import ConfigError, DecoderError, not_allowed
@@ -65,7 +66,7 @@ P_DIGITS = 12
 MIN_BATCH_BYTES = 1024
 _SEED_LIMIT = 2**63
 
-_TOP_KEYS = ("name", "seed", "stopping", "engine", "study")
+_TOP_KEYS = ("name", "seed", "stopping", "engine", "cluster", "study")
 _STOPPING_KEYS = ("failure_target", "shot_budget", "relative_precision")
 _ENGINE_KEYS = ("batch_bytes",)
 _STUDY_KEYS = (
@@ -118,6 +119,10 @@ class Sweep:
         Path of the sweep file, or ``"<dict>"``.
     batch_bytes : int
         Upper bound on the bytes of detection events one batch may hold.
+    cluster : ClusterSpec or None
+        Where batches run when the ``[cluster]`` section is given (a Dask
+        scheduler, a local Dask cluster or a batch system); ``None`` runs on
+        local processes. It never changes the counts.
     """
 
     name: str
@@ -127,6 +132,7 @@ class Sweep:
     source_text: str
     source: str
     batch_bytes: int = DEFAULT_BATCH_BYTES
+    cluster: ClusterSpec | None = None
 
     @property
     def output_dir_default(self) -> Path:
@@ -276,6 +282,7 @@ def _parse(data: object, source: str, text: str) -> Sweep:
         raise _Problem(not_allowed("seed", seed, _SEED_ALLOWED))
     stopping = _parse_stopping(data.get("stopping", {}))
     batch_bytes = _parse_engine(data.get("engine", {}))
+    cluster = _parse_cluster(data["cluster"]) if "cluster" in data else None
     studies = _require(data, "study", "one or more [[study]] tables")
     if not isinstance(studies, list) or not studies:
         raise _Problem(not_allowed("study", studies, "a non-empty array of tables ([[study]])"))
@@ -299,6 +306,7 @@ def _parse(data: object, source: str, text: str) -> Sweep:
         source_text=text,
         source=source,
         batch_bytes=batch_bytes,
+        cluster=cluster,
     )
 
 
@@ -329,6 +337,13 @@ def _parse_engine(table: object) -> int:
     if not _is_int(value) or value < MIN_BATCH_BYTES:
         raise _Problem(not_allowed("engine.batch_bytes", value, f"an integer >= {MIN_BATCH_BYTES}"))
     return int(value)
+
+
+def _parse_cluster(table: object) -> ClusterSpec:
+    try:
+        return parse_cluster(table)
+    except ConfigError as exc:  # its message has no source in front yet
+        raise _Problem(str(exc)) from None
 
 
 def _parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[Point]]:

@@ -80,11 +80,15 @@ class Store:
         self.path.parent.mkdir(parents=True, exist_ok=True)
         self._db = sqlite3.connect(self.path, isolation_level=None, timeout=30)
         try:
-            self._db.execute("PRAGMA journal_mode=WAL")
-            self._db.execute("PRAGMA synchronous=NORMAL")
-            if not existed:
+            if existed:
+                self._check_intact()
+            else:
+                # Before WAL mode: written straight into the file header, so a store
+                # killed before its first checkpoint is still recognised as ours.
                 self._db.execute(f"PRAGMA application_id={APPLICATION_ID}")
                 self._db.execute(f"PRAGMA user_version={SCHEMA_VERSION}")
+            self._db.execute("PRAGMA journal_mode=WAL")
+            self._db.execute("PRAGMA synchronous=NORMAL")
             self._db.executescript(_SCHEMA)
         except sqlite3.DatabaseError as exc:
             self._db.close()
@@ -98,8 +102,28 @@ class Store:
             raise StoreError(f"cannot read results store '{self.path}': {exc}.") from exc
         if len(header) < 100 or not header.startswith(b"SQLite format 3\x00"):
             raise StoreError(f"'{self.path}' is not a codebench results store (not an SQLite file); left untouched.")
-        if int.from_bytes(header[68:72], "big") != APPLICATION_ID:
+
+    def _check_intact(self) -> None:
+        """Refuse a damaged or newer store before anything is written to it."""
+        try:
+            # Read through the connection, not the file header: the header lags behind
+            # the write-ahead log of a store that is open elsewhere or was killed.
+            application_id = int(self._db.execute("PRAGMA application_id").fetchone()[0])
+            verdict = [row[0] for row in self._db.execute("PRAGMA quick_check").fetchall()]
+            version = int(self._db.execute("PRAGMA user_version").fetchone()[0])
+        except sqlite3.DatabaseError as exc:
+            application_id, verdict, version = APPLICATION_ID, [str(exc)], SCHEMA_VERSION
+        if application_id != APPLICATION_ID:
+            self._db.close()
             raise StoreError(f"'{self.path}' is an SQLite file written by another program; left untouched.")
+        if verdict != ["ok"]:
+            self._db.close()
+            raise StoreError(f"'{self.path}' is damaged ({'; '.join(verdict[:2])}); left untouched: move it "
+                             "away (or choose another --out) and run again.")
+        if version > SCHEMA_VERSION:
+            self._db.close()
+            raise StoreError(f"'{self.path}' was written by a newer codebench (store schema {version}, "
+                             f"this one reads {SCHEMA_VERSION}); left untouched.")
 
     def close(self) -> None:
         self._db.close()

@@ -569,6 +569,18 @@ def test_foreign_store_is_refused_and_left_untouched(make: Any, grid_file: Path,
     assert sorted(p.name for p in out.iterdir()) == listing
 
 
+def test_store_killed_before_its_first_checkpoint_is_still_ours(tmp_path: Path) -> None:
+    # Only the write-ahead log holds the rows of a store whose writer was killed before
+    # SQLite's first checkpoint; it must be recognised as a codebench store, not a foreign one.
+    store = tmp_path / "results.sqlite"
+    code = f"import os; from codebench.store import Store; Store({str(store)!r}); os._exit(0)"
+    subprocess.run([sys.executable, "-c", code], check=True)
+    assert (tmp_path / "results.sqlite-wal").exists()
+    from codebench.store import Store
+
+    Store(store).close()
+
+
 # ---------------------------------------------------------------------------
 # export and the results table
 

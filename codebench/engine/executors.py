@@ -3,7 +3,8 @@
 The engine holds all the logic (what to run, when to stop); an executor only
 runs :func:`~codebench.engine.worker.run_batch` somewhere. Implementations:
 :class:`InProcessExecutor` (runs in the caller, used for one worker and in
-tests) and :class:`LocalExecutor` (a pool of local processes).
+tests), :class:`LocalExecutor` (a pool of local processes) and
+:class:`~codebench.engine.dask_executor.DaskExecutor` (a Dask cluster).
 """
 
 from __future__ import annotations
@@ -15,6 +16,7 @@ from abc import ABC, abstractmethod
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from typing import ClassVar
 
+from codebench.engine.cluster import ClusterSpec
 from codebench.engine.worker import BatchResult, BatchTask, run_batch
 
 
@@ -43,6 +45,14 @@ class Executor(ABC):
 
         ``wait=False`` (after an interrupt) does not wait for running batches.
         """
+
+    def summary(self) -> str:
+        """One line saying where batches run, printed when a run starts."""
+        return ""
+
+    def note(self) -> str:
+        """A short live remark for the progress line (for example workers lost)."""
+        return ""
 
 
 class InProcessExecutor(Executor):
@@ -111,6 +121,9 @@ class LocalExecutor(Executor):
     def in_flight(self) -> int:
         return len(self._futures)
 
+    def summary(self) -> str:
+        return f"{self.workers} local worker processes"
+
     def close(self, wait: bool = True) -> None:
         if not wait:
             # Interrupted: do not sit out the running batches; their results would be dropped anyway.
@@ -119,7 +132,11 @@ class LocalExecutor(Executor):
         self._pool.shutdown(wait=wait, cancel_futures=True)
 
 
-def make_executor(workers: int | None) -> Executor:
-    """The default executor for ``workers`` local workers (all cores when ``None``)."""
+def make_executor(workers: int | None, cluster: ClusterSpec | None = None) -> Executor:
+    """The executor for a Dask ``cluster`` if given, else for ``workers`` local workers (all cores when ``None``)."""
+    if cluster is not None:
+        from codebench.engine.dask_executor import start_dask_executor  # Dask is imported only when used
+
+        return start_dask_executor(cluster)
     count = workers or os.cpu_count() or 1
     return InProcessExecutor() if count == 1 else LocalExecutor(count)

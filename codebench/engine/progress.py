@@ -66,7 +66,7 @@ class Progress:
         self.session_shots += shots
         self.session_failures += failures
 
-    def line(self, statuses: Sequence[PointStatus]) -> str:
+    def line(self, statuses: Sequence[PointStatus], note: str = "") -> str:
         done = sum(s.tally.finished for s in statuses)
         elapsed = max(1e-9, time.monotonic() - self.start)
         parts = [f"{self.name}: {done}/{len(statuses)} points"]
@@ -82,15 +82,17 @@ class Progress:
         if current is not None and costs:
             eta = sum(remaining_seconds(s, self.stopping, fallback) for s in statuses) / self.parallelism
             parts.append(f"ETA {_clock(eta)}")
+        if note:
+            parts.append(note)
         return " | ".join(parts)
 
-    def update(self, statuses: Sequence[PointStatus], force: bool = False) -> None:
+    def update(self, statuses: Sequence[PointStatus], force: bool = False, note: str = "") -> None:
         now = time.monotonic()
         interval = 0.25 if self.tty else 10.0
         if not force and now - self.last < interval:
             return
         self.last = now
-        text = self.line(statuses)
+        text = self.line(statuses, note)
         if self.tty:
             self.stream.write("\r" + text.ljust(self.width))
             self.width = len(text)
@@ -98,8 +100,8 @@ class Progress:
             self.stream.write(text + "\n")
         self.stream.flush()
 
-    def finish(self, statuses: Sequence[PointStatus]) -> None:
-        self.update(statuses, force=True)
+    def finish(self, statuses: Sequence[PointStatus], note: str = "") -> None:
+        self.update(statuses, force=True, note=note)
         if self.tty:
             self.stream.write("\n")
             self.stream.flush()

@@ -148,14 +148,15 @@ def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress 
                 if progress is not None:
                     progress.record(result.shots, result.failures)
             if progress is not None:
-                progress.update([r.status() for r in runs])
+                progress.update([r.status() for r in runs], note=executor.note())
     except (KeyboardInterrupt, Interrupted):
         interrupted = True
         raise Interrupted("interrupted") from None
     finally:
+        note = "" if interrupted else executor.note()
         executor.close(wait=not interrupted)
         if progress is not None:
-            progress.finish([r.status() for r in runs])
+            progress.finish([r.status() for r in runs], note=note)
     return runs
 
 

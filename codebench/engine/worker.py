@@ -9,9 +9,14 @@ process, so a point is compiled once per worker, not once per batch.
 from __future__ import annotations
 
 import hashlib
+import platform
+import threading
 import time
 from collections import OrderedDict
 from dataclasses import dataclass
+from functools import lru_cache
+from importlib import metadata
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -56,7 +61,14 @@ class CompiledPoint:
     num_observables: int
 
 
-_cache: OrderedDict[str, CompiledPoint] = OrderedDict()
+class _ThreadCache(threading.local):
+    """One cache per worker thread: a decoder object is never shared by two threads."""
+
+    def __init__(self) -> None:
+        self.points: OrderedDict[str, CompiledPoint] = OrderedDict()
+
+
+_cache = _ThreadCache()
 
 
 def batch_seed(sweep_seed: int, point_key: str, batch_index: int, shots: int) -> int:
@@ -82,13 +94,14 @@ def compile_point(params: dict[str, Any]) -> CompiledPoint:
 
 def compiled(point_key: str, params: dict[str, Any]) -> CompiledPoint:
     """The cached compiled point, compiling it on first use."""
-    if point_key in _cache:
-        _cache.move_to_end(point_key)
-        return _cache[point_key]
+    cache = _cache.points
+    if point_key in cache:
+        cache.move_to_end(point_key)
+        return cache[point_key]
     entry = compile_point(params)
-    _cache[point_key] = entry
-    while len(_cache) > CACHE_SIZE:
-        _cache.popitem(last=False)
+    cache[point_key] = entry
+    while len(cache) > CACHE_SIZE:
+        cache.popitem(last=False)
     return entry
 
 
@@ -121,6 +134,51 @@ def run_batch(task: BatchTask) -> BatchResult:
         seconds=time.perf_counter() - start,
         decode_seconds=decode_seconds,
     )
+
+
+#: Packages whose versions decide the counts of a batch.
+COUNTING_PACKAGES = ("stim", "pymatching", "ldpc", "numpy")
+
+
+@lru_cache(maxsize=1)
+def environment() -> dict[str, str]:
+    """What decides a batch's counts besides its task: library versions and codebench's own source.
+
+    The source digest catches a worker whose codebench differs from the
+    coordinator's though its version number is the same (an edited checkout).
+    """
+    out = {"python": ".".join(platform.python_version_tuple()[:2])}
+    for package in COUNTING_PACKAGES:
+        try:
+            out[package] = metadata.version(package)
+        except metadata.PackageNotFoundError:
+            out[package] = "missing"
+    digest = hashlib.sha256()
+    root = Path(__file__).resolve().parents[1]
+    for path in sorted(root.rglob("*.py")):
+        digest.update(path.relative_to(root).as_posix().encode())
+        digest.update(path.read_bytes())
+    out["codebench"] = digest.hexdigest()[:16]
+    return out
+
+
+class EnvironmentMismatch(Exception):
+    """A worker's libraries or codebench source differ from the coordinator's."""
+
+
+def run_batch_checked(task: BatchTask, expected: dict[str, str]) -> BatchResult:
+    """:func:`run_batch`, refused on a worker whose :func:`environment` is not ``expected``.
+
+    Used where workers are other machines: a batch drawn with another stim or
+    decoder version would silently give other counts for the same seed.
+    """
+    mine = environment()
+    differing = sorted(k for k in set(expected) | set(mine) if expected.get(k) != mine.get(k))
+    if differing:
+        details = ", ".join(f"{k} {mine.get(k, 'missing')} (coordinator: {expected.get(k, 'missing')})"
+                            for k in differing)
+        raise EnvironmentMismatch(f"worker on {platform.node()} differs from the coordinator: {details}")
+    return run_batch(task)
 
 
 #: Shots drawn from the sampler at once, at most (fewer for very large circuits).

@@ -1,0 +1,155 @@
+"""Where a sweep runs when it outgrows one machine: the ``[cluster]`` settings.
+
+Three ways to reach Dask workers, exactly one per sweep:
+
+- ``scheduler``: the address of a running Dask scheduler (``tcp://host:8786``);
+- ``local_workers``: a Dask cluster of that many worker processes started on
+  this machine for the run (and closed after it);
+- ``batch_system``: a cluster whose workers are jobs of a batch system
+  (SLURM, PBS, SGE, LSF, HTCondor, Moab, OAR) started through dask-jobqueue;
+  ``options`` are passed unchanged to its cluster class, ``jobs`` fixes how
+  many jobs are requested, or ``adapt_minimum``/``adapt_maximum`` let the
+  cluster grow and shrink with the work.
+
+This module only describes and validates; :mod:`codebench.engine.dask_executor`
+connects. Keeping Dask out of here lets sweep files be checked on machines
+without it.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from typing import Any
+
+from codebench.errors import ConfigError, not_allowed
+
+#: ``batch_system`` names and the dask-jobqueue classes they start.
+BATCH_SYSTEMS = {
+    "slurm": "SLURMCluster",
+    "pbs": "PBSCluster",
+    "sge": "SGECluster",
+    "lsf": "LSFCluster",
+    "htcondor": "HTCondorCluster",
+    "moab": "MoabCluster",
+    "oar": "OARCluster",
+}
+
+CLUSTER_KEYS = (
+    "scheduler",
+    "local_workers",
+    "threads_per_worker",
+    "batch_system",
+    "jobs",
+    "adapt_minimum",
+    "adapt_maximum",
+    "options",
+    "connect_timeout",
+)
+_WAYS = ("scheduler", "local_workers", "batch_system")
+_ADDRESS = re.compile(r"(tcp|tls|inproc|ucx|ws|wss)://\S+|[A-Za-z0-9_.\-]+:\d+")
+ADDRESS_ALLOWED = "a Dask scheduler address such as 'tcp://head-node:8786'"
+
+
+@dataclass(frozen=True)
+class ClusterSpec:
+    """Validated ``[cluster]`` settings (see the module docstring)."""
+
+    scheduler: str | None = None
+    local_workers: int | None = None
+    threads_per_worker: int = 1
+    batch_system: str | None = None
+    jobs: int | None = None
+    adapt_minimum: int | None = None
+    adapt_maximum: int | None = None
+    options: dict[str, Any] = field(default_factory=dict)
+    #: Seconds to wait for the scheduler to answer.
+    connect_timeout: float = 30.0
+
+    @property
+    def way(self) -> str:
+        """``"scheduler"``, ``"local_workers"`` or ``"batch_system"``."""
+        return next(w for w in _WAYS if getattr(self, w) is not None)
+
+
+def scheduler_address(value: object, path: str) -> str:
+    """A scheduler address as given on the command line or in ``[cluster]``.
+
+    >>> scheduler_address("tcp://10.1.2.3:8786", "--scheduler")
+    'tcp://10.1.2.3:8786'
+    >>> scheduler_address("head:8786", "--scheduler")
+    'tcp://head:8786'
+    """
+    if not isinstance(value, str) or _ADDRESS.fullmatch(value.strip()) is None:
+        raise ConfigError(not_allowed(path, value, ADDRESS_ALLOWED))
+    text = value.strip()
+    return text if "://" in text else f"tcp://{text}"
+
+
+def parse_cluster(table: object) -> ClusterSpec:
+    """Validate a ``[cluster]`` table; every error names its key."""
+    if not isinstance(table, dict):
+        raise ConfigError(not_allowed("cluster", table, "a table ([cluster])"))
+    unknown = sorted(set(table) - set(CLUSTER_KEYS))
+    if unknown:
+        raise ConfigError(not_allowed(f"cluster.{unknown[0]}", table[unknown[0]],
+                                      "absent (allowed keys: " + ", ".join(CLUSTER_KEYS) + ")"))
+    ways = [w for w in _WAYS if w in table]
+    if len(ways) != 1:
+        raise ConfigError(not_allowed("cluster", ", ".join(ways) or "none of them",
+                                      "exactly one of scheduler, local_workers, batch_system"))
+    way = ways[0]
+    _only_with(table, way, "threads_per_worker", ("local_workers",))
+    for key in ("jobs", "adapt_minimum", "adapt_maximum", "options"):
+        _only_with(table, way, key, ("batch_system",))
+    spec: dict[str, Any] = {}
+    if way == "scheduler":
+        spec["scheduler"] = scheduler_address(table["scheduler"], "cluster.scheduler")
+    elif way == "local_workers":
+        spec["local_workers"] = _count(table, "local_workers", 1)
+        spec["threads_per_worker"] = _count(table, "threads_per_worker", 1, default=1)
+    else:
+        spec.update(_batch_system(table))
+    if "connect_timeout" in table:
+        value = table["connect_timeout"]
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not 0 < value <= 3600:
+            raise ConfigError(not_allowed("cluster.connect_timeout", value, "a number of seconds in (0, 3600]"))
+        spec["connect_timeout"] = float(value)
+    return ClusterSpec(**spec)
+
+
+def _batch_system(table: dict[str, Any]) -> dict[str, Any]:
+    name = table["batch_system"]
+    if name not in BATCH_SYSTEMS:
+        raise ConfigError(not_allowed("cluster.batch_system", name, "one of " + ", ".join(BATCH_SYSTEMS)))
+    out: dict[str, Any] = {"batch_system": name}
+    adaptive = "adapt_minimum" in table or "adapt_maximum" in table
+    if adaptive == ("jobs" in table):
+        raise ConfigError(not_allowed("cluster.jobs", table.get("jobs", "absent"),
+                                      "given alone, or replaced by adapt_minimum and adapt_maximum"))
+    if adaptive:
+        low = _count(table, "adapt_minimum", 0)
+        high = _count(table, "adapt_maximum", 1)
+        if high < low:
+            raise ConfigError(not_allowed("cluster.adapt_maximum", high, f"at least adapt_minimum ({low})"))
+        out.update(adapt_minimum=low, adapt_maximum=high)
+    else:
+        out["jobs"] = _count(table, "jobs", 1)
+    options = table.get("options", {})
+    if not isinstance(options, dict):
+        raise ConfigError(not_allowed("cluster.options", options, "a table ([cluster.options]) of "
+                                      f"arguments for dask_jobqueue.{BATCH_SYSTEMS[name]}"))
+    out["options"] = dict(options)
+    return out
+
+
+def _only_with(table: dict[str, Any], way: str, key: str, ways: tuple[str, ...]) -> None:
+    if key in table and way not in ways:
+        raise ConfigError(not_allowed(f"cluster.{key}", table[key], f"absent unless {' or '.join(ways)} is given"))
+
+
+def _count(table: dict[str, Any], key: str, least: int, default: int | None = None) -> int:
+    value = table.get(key, default)
+    if isinstance(value, bool) or not isinstance(value, int) or value < least:
+        raise ConfigError(not_allowed(f"cluster.{key}", value, f"an integer >= {least}"))
+    return value

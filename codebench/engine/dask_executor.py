@@ -1,0 +1,229 @@
+"""Run batches on a Dask cluster (dask.distributed).
+
+The coordinator keeps every decision (which batch, when to stop) and is the
+only writer of the store; Dask only moves a :class:`BatchTask` (a few hundred
+bytes: the point's parameters, the batch index, its size and seed) to a
+worker and a :class:`BatchResult` back. Workers import codebench themselves
+and cache the compiled circuit and decoder per point
+(:func:`~codebench.engine.worker.compiled`), so a point is compiled once per
+worker thread.
+
+Fault tolerance is Dask's: a batch running on a worker that dies is
+rescheduled on another one. A batch is a pure function of its task, so a
+rerun gives the very counts the lost run would have given. When the
+scheduler gives up on a batch (it was on too many dying workers) the batch is
+resubmitted a few more times before the sweep stops with a clear error.
+"""
+
+from __future__ import annotations
+
+import inspect
+import logging
+import sys
+import time
+import uuid
+from typing import Any
+
+from codebench.engine.cluster import BATCH_SYSTEMS, ClusterSpec
+from codebench.engine.executors import Executor
+from codebench.engine.worker import BatchResult, BatchTask, EnvironmentMismatch, environment, run_batch_checked
+from codebench.errors import CodebenchError, ConfigError, not_allowed
+
+try:
+    import distributed
+
+    HAVE_DISTRIBUTED = True
+except ImportError:  # only without the cluster extra
+    HAVE_DISTRIBUTED = False
+
+#: Resubmissions of one batch after the scheduler gave up on it (KilledWorker).
+RESUBMITS = 2
+#: Seconds between two looks at the scheduler's list of workers.
+WORKER_POLL_SECONDS = 2.0
+_INSTALL_HINT = "running on a Dask cluster needs the cluster extra: pip install 'codebench[cluster]'"
+
+
+class DaskExecutor(Executor):
+    """Batches on the workers of ``client``.
+
+    ``owned`` lists what this executor started and closes with it (its client,
+    a cluster); a client handed in by the caller stays open.
+    """
+
+    name = "dask"
+
+    def __init__(self, client: Any, owned: list[Any] | None = None) -> None:
+        self._client = client
+        self._owned = list(owned or [])
+        self._expected = environment()
+        self._tasks: dict[Any, tuple[BatchTask, int]] = {}
+        self._workers: dict[str, int] = {}
+        self._polled = -float("inf")
+        self.workers_lost = 0
+        self.resubmitted = 0
+
+    # worker bookkeeping ----------------------------------------------------
+
+    def _poll_workers(self) -> None:
+        now = time.monotonic()
+        if now - self._polled < WORKER_POLL_SECONDS:
+            return
+        self._polled = now
+        try:
+            info = self._client.scheduler_info(n_workers=-1)
+        except (OSError, TimeoutError):  # scheduler unreachable for now: keep the last known workers
+            return
+        current = {address: int(w.get("nthreads", 1)) for address, w in info.get("workers", {}).items()}
+        self.workers_lost += len(set(self._workers) - set(current))
+        self._workers = current
+
+    @property
+    def capacity(self) -> int:
+        # Two batches per worker thread keep every thread busy while results travel;
+        # at least two so that work is queued while batch-system jobs wait to start.
+        self._poll_workers()
+        return max(2, 2 * sum(self._workers.values()))
+
+    def note(self) -> str:
+        self._poll_workers()
+        text = f"{len(self._workers)} Dask workers"
+        if self.workers_lost:
+            text += f", {self.workers_lost} lost"
+        if self.resubmitted:
+            text += f", {self.resubmitted} batches resubmitted"
+        return text
+
+    def summary(self) -> str:
+        self._poll_workers()
+        link = getattr(self._client, "dashboard_link", None)
+        threads = sum(self._workers.values())
+        text = (f"Dask scheduler {self._client.scheduler.address}: {len(self._workers)} workers, "
+                f"{threads} threads")
+        return text + (f"; dashboard {link}" if link else "")
+
+    # batches ---------------------------------------------------------------
+
+    def submit(self, task: BatchTask, attempt: int = 0) -> None:
+        # A fresh key per submission: a resubmitted batch must not be mistaken for the failed one.
+        key = f"codebench-batch-{task.point_key[:12]}-{task.batch_index}-{uuid.uuid4().hex[:8]}"
+        future = self._client.submit(run_batch_checked, task, self._expected, key=key, pure=False)
+        self._tasks[future] = (task, attempt)
+
+    def completed(self, timeout: float) -> list[BatchResult]:
+        if not self._tasks:
+            return []
+        try:
+            done, _ = distributed.wait(list(self._tasks), timeout=timeout, return_when="FIRST_COMPLETED")
+        except TimeoutError:
+            return []
+        results: list[BatchResult] = []
+        for future in done:
+            task, attempt = self._tasks.pop(future)
+            if future.status == "finished":
+                results.append(future.result())
+            else:
+                self._failed(future, task, attempt)
+            future.release()
+        return results
+
+    def _failed(self, future: Any, task: BatchTask, attempt: int) -> None:
+        error = None if future.status == "cancelled" else future.exception()
+        if error is None or isinstance(error, distributed.KilledWorker):
+            if attempt >= RESUBMITS:
+                raise CodebenchError(
+                    f"batch {task.batch_index} of point {task.point_key[:12]} was lost with "
+                    f"{attempt + 1} rounds of dying workers ({error}); the workers may be short of memory "
+                    "(lower engine.batch_bytes or give workers more memory)"
+                )
+            self.resubmitted += 1
+            self.submit(task, attempt + 1)
+            return
+        if isinstance(error, EnvironmentMismatch):
+            raise CodebenchError(f"{error}; install the same versions on the workers so counts stay reproducible")
+        future.result()  # re-raises the worker's own error (for example a DecoderError)
+
+    def in_flight(self) -> int:
+        return len(self._tasks)
+
+    def close(self, wait: bool = True) -> None:
+        pending = list(self._tasks)
+        self._tasks.clear()
+        try:
+            if pending:
+                self._client.cancel(pending, force=True)
+            for resource in self._owned:  # the client before the cluster it talks to
+                resource.close(timeout=10 if wait else 2)
+        except Exception as exc:  # closing is best effort: the batches that matter are stored
+            print(f"codebench: closing the Dask cluster: {type(exc).__name__}: {exc}", file=sys.stderr)
+
+
+def start_dask_executor(spec: ClusterSpec) -> DaskExecutor:
+    """Connect to (or start) the cluster ``spec`` describes."""
+    if not HAVE_DISTRIBUTED:
+        raise CodebenchError(_INSTALL_HINT)
+    if spec.scheduler is not None:
+        client = _connect(spec.scheduler, spec.connect_timeout)
+        return DaskExecutor(client, [client])
+    if spec.local_workers is not None:
+        # Worker processes write to this terminal; Dask's own shutdown races (a heartbeat
+        # meeting a closing connection) would print tracebacks there. Lost workers and
+        # resubmitted batches are reported on the progress line instead.
+        cluster = distributed.LocalCluster(
+            n_workers=spec.local_workers, threads_per_worker=spec.threads_per_worker, processes=True,
+            dashboard_address=":0", silence_logs=logging.CRITICAL,
+        )
+        client = distributed.Client(cluster)
+        return DaskExecutor(client, [client, cluster])
+    cluster = batch_system_cluster(spec)
+    if spec.jobs is not None:
+        cluster.scale(jobs=spec.jobs)
+    else:
+        cluster.adapt(minimum_jobs=spec.adapt_minimum, maximum_jobs=spec.adapt_maximum)
+    client = distributed.Client(cluster, timeout=spec.connect_timeout)
+    return DaskExecutor(client, [client, cluster])
+
+
+def batch_system_cluster(spec: ClusterSpec) -> Any:
+    """The dask-jobqueue cluster of ``spec``, with no job submitted yet (see its ``job_script()``)."""
+    try:
+        import dask_jobqueue
+    except ImportError:
+        raise CodebenchError(_INSTALL_HINT) from None
+    assert spec.batch_system is not None
+    class_name = BATCH_SYSTEMS[spec.batch_system]
+    cluster_class = getattr(dask_jobqueue, class_name)
+    allowed = jobqueue_options(cluster_class)
+    for key, value in spec.options.items():
+        # Checked here: a cluster whose construction fails half way cannot be closed cleanly.
+        if key not in allowed:
+            raise ConfigError(not_allowed(f"cluster.options.{key}", value,
+                                          f"absent: dask_jobqueue.{class_name} takes " + ", ".join(sorted(allowed))))
+    try:
+        cluster = cluster_class(**spec.options)
+    except (TypeError, ValueError) as exc:
+        raise ConfigError(f"cluster.options are not accepted by dask_jobqueue.{class_name}: {exc}.") from None
+    return cluster
+
+
+#: Constructor arguments that codebench sets itself or that make no sense in a sweep file.
+_NOT_OPTIONS = {"self", "job_cls", "loop", "asynchronous", "job_kwargs", "scheduler", "name", "base_class_kwargs",
+                "args", "kwargs", "config_name"}
+
+
+def jobqueue_options(cluster_class: Any) -> set[str]:
+    """Names a dask-jobqueue cluster class accepts: its own and those of its job class."""
+    names: set[str] = set()
+    for cls in (*cluster_class.__mro__, *cluster_class.job_cls.__mro__):
+        if "__init__" in vars(cls):
+            names.update(inspect.signature(cls.__init__).parameters)
+    return names - _NOT_OPTIONS
+
+
+def _connect(address: str, timeout: float) -> Any:
+    try:
+        return distributed.Client(address, timeout=timeout)
+    except (OSError, TimeoutError) as exc:
+        raise CodebenchError(
+            f"cannot reach the Dask scheduler at '{address}' within {timeout:g} s ({exc}); "
+            "is it running, and is the address right?"
+        ) from None
