@@ -50,8 +50,9 @@ def main() -> None:
         "study": [{"code": "rotated_surface", "distances": [15], "rounds": 15, "noise": "si1000",
                    "p": [0.001, 0.005], "decoders": ["mwpm"]}],
     }
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0") as cluster:
-        with Client(cluster) as client:
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,  # type: ignore[no-untyped-call]
+                      dashboard_address=":0") as cluster:
+        with Client(cluster) as client:  # type: ignore[no-untyped-call]
             client.wait_for_workers(2)
             start = time.perf_counter()
             with tempfile.TemporaryDirectory() as out:

@@ -16,7 +16,7 @@ import pytest
 from codebench.circuits import build_memory
 from codebench.codes import CODE_FAMILIES
 from codebench.decoders import DECODERS
-from codebench.engine.executors import InProcessExecutor, LocalExecutor
+from codebench.engine.executors import Executor, InProcessExecutor, LocalExecutor
 from codebench.engine.points import Point
 from codebench.engine.worker import BatchTask, batch_seed
 from codebench.noise import NOISE_MODELS
@@ -130,7 +130,15 @@ def _tasks() -> list[BatchTask]:
     ]
 
 
-@pytest.mark.parametrize("make", [InProcessExecutor, lambda: LocalExecutor(2)], ids=["in_process", "local"])
+def _local_dask_cluster() -> Executor:
+    from codebench.engine.cluster import ClusterSpec
+    from codebench.engine.dask_executor import start_dask_executor
+
+    return start_dask_executor(ClusterSpec(local_workers=2))
+
+
+@pytest.mark.parametrize("make", [InProcessExecutor, lambda: LocalExecutor(2), _local_dask_cluster],
+                         ids=["in_process", "local", "dask"])
 def test_executor_returns_the_in_process_results(make) -> None:  # type: ignore[no-untyped-def]
     expected = {(t.point_key, t.batch_index): None for t in _tasks()}
     reference = InProcessExecutor()

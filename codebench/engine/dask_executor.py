@@ -30,6 +30,7 @@ from codebench.engine.worker import BatchResult, BatchTask, EnvironmentMismatch,
 from codebench.errors import CodebenchError, ConfigError, not_allowed
 
 try:
+    import dask
     import distributed
 
     HAVE_DISTRIBUTED = True
@@ -40,6 +41,13 @@ except ImportError:  # only without the cluster extra
 RESUBMITS = 2
 #: Seconds between two looks at the scheduler's list of workers.
 WORKER_POLL_SECONDS = 2.0
+#: Worker settings of a local cluster. Dask's statistical profiler samples every worker
+#: thread each 10 ms and its system monitor wakes twice a second: a few per cent of a
+#: CPU-bound batch on a machine whose cores all run batches, for data nobody reads here.
+LOCAL_WORKER_CONFIG = {
+    "distributed.worker.profile.enabled": False,
+    "distributed.admin.system-monitor.interval": "5s",
+}
 _INSTALL_HINT = "running on a Dask cluster needs the cluster extra: pip install 'codebench[cluster]'"
 
 
@@ -168,10 +176,11 @@ def start_dask_executor(spec: ClusterSpec) -> DaskExecutor:
         # Worker processes write to this terminal; Dask's own shutdown races (a heartbeat
         # meeting a closing connection) would print tracebacks there. Lost workers and
         # resubmitted batches are reported on the progress line instead.
-        cluster = distributed.LocalCluster(
-            n_workers=spec.local_workers, threads_per_worker=spec.threads_per_worker, processes=True,
-            dashboard_address=":0", silence_logs=logging.CRITICAL,
-        )
+        with dask.config.set(LOCAL_WORKER_CONFIG):
+            cluster = distributed.LocalCluster(
+                n_workers=spec.local_workers, threads_per_worker=spec.threads_per_worker, processes=True,
+                dashboard_address=":0", silence_logs=logging.CRITICAL,
+            )
         client = distributed.Client(cluster)
         return DaskExecutor(client, [client, cluster])
     cluster = batch_system_cluster(spec)
