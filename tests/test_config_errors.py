@@ -53,7 +53,7 @@ def sweep_text(top: str = TOP, *blocks: str) -> str:
 # (id, file text, fragments the message must contain: key path first)
 BAD: list[tuple[str, str, list[str]]] = [
     ("unknown top key", sweep_text(TOP + 'colour = "red"\n'),
-     ["colour is not a known key", "allowed keys: name, seed, stopping, engine, study."]),
+     ["colour is not a known key", "allowed keys: name, seed, stopping, engine, cluster, study."]),
     ("study key typo", sweep_text(TOP, study(distances=None, distanse="[3]")),
      ["study[0].distanse is not a known key", "allowed keys: code, distances, rounds"]),
     ("distances wrong type", sweep_text(TOP, study(distances='"3"')),

@@ -90,10 +90,9 @@ def parse_cluster(table: object) -> ClusterSpec:
     """Validate a ``[cluster]`` table; every error names its key."""
     if not isinstance(table, dict):
         raise ConfigError(not_allowed("cluster", table, "a table ([cluster])"))
-    unknown = sorted(set(table) - set(CLUSTER_KEYS))
+    unknown = [key for key in table if key not in CLUSTER_KEYS]
     if unknown:
-        raise ConfigError(not_allowed(f"cluster.{unknown[0]}", table[unknown[0]],
-                                      "absent (allowed keys: " + ", ".join(CLUSTER_KEYS) + ")"))
+        raise ConfigError(f"cluster.{unknown[0]} is not a known key; allowed keys: {', '.join(CLUSTER_KEYS)}.")
     ways = [w for w in _WAYS if w in table]
     if len(ways) != 1:
         raise ConfigError(not_allowed("cluster", ", ".join(ways) or "none of them",

@@ -160,7 +160,7 @@ class DaskExecutor(Executor):
             if pending:
                 self._client.cancel(pending, force=True)
             for resource in self._owned:  # the client before the cluster it talks to
-                resource.close(timeout=10 if wait else 2)
+                resource.close(timeout=10 if wait else 5)
         except Exception as exc:  # closing is best effort: the batches that matter are stored
             print(f"codebench: closing the Dask cluster: {type(exc).__name__}: {exc}", file=sys.stderr)
 
@@ -180,6 +180,7 @@ def start_dask_executor(spec: ClusterSpec) -> DaskExecutor:
             cluster = distributed.LocalCluster(
                 n_workers=spec.local_workers, threads_per_worker=spec.threads_per_worker, processes=True,
                 dashboard_address=":0", silence_logs=logging.CRITICAL,
+                preload=["codebench.engine.dask_worker_setup"],
             )
         client = distributed.Client(cluster)
         return DaskExecutor(client, [client, cluster])

@@ -23,6 +23,7 @@ shift
 VENV=${CODEBENCH_VENV:-$PWD/.venv}          # the same environment on every node
 source "$VENV/bin/activate"
 
+export DASK_DISTRIBUTED__WORKER__PROFILE__ENABLED=False   # no 10 ms stack sampling of busy workers
 SCHEDULER_FILE=$PWD/dask-scheduler-$SLURM_JOB_ID.json
 dask scheduler --scheduler-file "$SCHEDULER_FILE" --port 0 --dashboard-address :0 &
 SCHEDULER_PID=$!
