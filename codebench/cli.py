@@ -11,7 +11,7 @@ import sys
 from pathlib import Path
 from typing import Callable, NoReturn, Sequence
 
-from codebench.errors import CodebenchError, Interrupted, not_allowed
+from codebench.errors import ClusterError, CodebenchError, Interrupted, not_allowed
 from codebench.stats import INTERVALS
 
 EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
@@ -279,6 +279,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         status: int = args.func(args)
         return status
+    except ClusterError as exc:
+        print(f"codebench: {exc}", file=sys.stderr)
+        return EXIT_FAILURE
     except CodebenchError as exc:
         print(f"codebench: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT

@@ -6,10 +6,12 @@
     ├── ConfigError           a sweep file or command-line value is not allowed
     ├── DeviceFileError       a device calibration file is not allowed
     ├── DecoderError          a decoder cannot be built or run for a point
-    └── StoreError            a results store is unusable (foreign, corrupt, locked)
+    ├── StoreError            a results store is unusable (foreign, corrupt, locked)
+    └── ClusterError          a cluster run could not go on (scheduler lost, workers keep dying)
 
-The command line maps every ``CodebenchError`` to exit status 2 and prints
-its message on one line, without a traceback.
+The command line prints the message of every ``CodebenchError`` on one line,
+without a traceback, and exits with status 2 (bad input), or 1 for a
+``ClusterError`` (the input was fine; the cluster failed).
 """
 
 from __future__ import annotations
@@ -35,6 +37,10 @@ class DecoderError(CodebenchError):
 
 class StoreError(CodebenchError):
     """A results store cannot be used."""
+
+
+class ClusterError(CodebenchError):
+    """A run on a cluster could not go on; its finished batches are stored."""
 
 
 def not_allowed(path: str, value: Any, allowed: str) -> str:

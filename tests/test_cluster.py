@@ -253,6 +253,30 @@ def test_second_coordinator_refused_while_first_lives_then_takes_over(
     assert counts(load_results(out)) == counts(reference[1])
 
 
+def test_lost_scheduler_stops_the_run_in_one_line_and_a_rerun_resumes(
+    sweep_file: Path, reference: tuple[Path, pd.DataFrame], tmp_path: Path
+) -> None:
+    out = tmp_path / "out"
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0") as doomed:
+        proc = start_sweep(sweep_file, out, "--scheduler", doomed.scheduler_address)
+        try:
+            wait_for_rows(out / "results.sqlite", 3, proc)
+            doomed.close()  # the scheduler and its workers go away mid-sweep
+            _, err = proc.communicate(timeout=90)
+        finally:
+            stop_group(proc)
+    assert proc.returncode == 1, err
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and "lost the connection to the Dask scheduler" in lines[0], err
+    before = batch_rows(out / "results.sqlite")
+    assert before
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0") as again:
+        done = cli("sweep", sweep_file, "--out", out, "--scheduler", again.scheduler_address, "--quiet")
+    assert done.returncode == 0, done.stderr
+    assert counts(load_results(out)) == counts(reference[1])
+    assert set(before) <= set(batch_rows(out / "results.sqlite"))
+
+
 # ---------------------------------------------------------------------------
 # damaged stores
 

@@ -22,12 +22,13 @@ import logging
 import sys
 import time
 import uuid
+from concurrent.futures import CancelledError
 from typing import Any
 
 from codebench.engine.cluster import BATCH_SYSTEMS, ClusterSpec
 from codebench.engine.executors import Executor
 from codebench.engine.worker import BatchResult, BatchTask, EnvironmentMismatch, environment, run_batch_checked
-from codebench.errors import CodebenchError, ConfigError, not_allowed
+from codebench.errors import ClusterError, CodebenchError, ConfigError, not_allowed
 
 try:
     import dask
@@ -62,6 +63,7 @@ class DaskExecutor(Executor):
 
     def __init__(self, client: Any, owned: list[Any] | None = None) -> None:
         self._client = client
+        self.address = str(client.scheduler.address)
         self._owned = list(owned or [])
         self._expected = environment()
         self._tasks: dict[Any, tuple[BatchTask, int]] = {}
@@ -69,6 +71,12 @@ class DaskExecutor(Executor):
         self._polled = -float("inf")
         self.workers_lost = 0
         self.resubmitted = 0
+        self._stop: ClusterError | None = None
+        # The client logs its reconnection attempts with tracebacks; a lost scheduler is
+        # reported by codebench itself, in one line. Restored on close.
+        self._client_log = logging.getLogger("distributed.client")
+        self._client_log_level = self._client_log.level
+        self._client_log.setLevel(logging.CRITICAL)
 
     # worker bookkeeping ----------------------------------------------------
 
@@ -105,7 +113,7 @@ class DaskExecutor(Executor):
         self._poll_workers()
         link = getattr(self._client, "dashboard_link", None)
         threads = sum(self._workers.values())
-        text = (f"Dask scheduler {self._client.scheduler.address}: {len(self._workers)} workers, "
+        text = (f"Dask scheduler {self.address}: {len(self._workers)} workers, "
                 f"{threads} threads")
         return text + (f"; dashboard {link}" if link else "")
 
@@ -118,37 +126,62 @@ class DaskExecutor(Executor):
         self._tasks[future] = (task, attempt)
 
     def completed(self, timeout: float) -> list[BatchResult]:
+        if self._stop is not None:
+            raise self._stop
         if not self._tasks:
             return []
         try:
             done, _ = distributed.wait(list(self._tasks), timeout=timeout, return_when="FIRST_COMPLETED")
         except TimeoutError:
             return []
+        except CancelledError:  # some batches were cancelled: by a lost scheduler, or by someone else
+            self._check_connection()
+            done = {future for future in self._tasks if future.status == "cancelled"}
         results: list[BatchResult] = []
         for future in done:
             task, attempt = self._tasks.pop(future)
-            if future.status == "finished":
-                results.append(future.result())
-            else:
-                self._failed(future, task, attempt)
-            future.release()
+            try:
+                if future.status == "finished":
+                    results.append(future.result())
+                else:
+                    self._failed(future, task, attempt)
+            except CancelledError:  # finished, but the connection went before its result came
+                self._resubmit(task, attempt, "cancelled")
+            except ClusterError as stop:
+                if not results:
+                    raise
+                self._stop = stop  # hand over the results first, so that they are committed
+                break
+            finally:
+                future.release()
         return results
+
+    def _check_connection(self) -> None:
+        if self._client.status != "running":
+            raise ClusterError(
+                f"lost the connection to the Dask scheduler at {self.address}; the finished batches are "
+                "stored: rerun the same command to resume once it is back"
+            )
 
     def _failed(self, future: Any, task: BatchTask, attempt: int) -> None:
         error = None if future.status == "cancelled" else future.exception()
         if error is None or isinstance(error, distributed.KilledWorker):
-            if attempt >= RESUBMITS:
-                raise CodebenchError(
-                    f"batch {task.batch_index} of point {task.point_key[:12]} was lost with "
-                    f"{attempt + 1} rounds of dying workers ({error}); the workers may be short of memory "
-                    "(lower engine.batch_bytes or give workers more memory)"
-                )
-            self.resubmitted += 1
-            self.submit(task, attempt + 1)
+            self._resubmit(task, attempt, "cancelled" if error is None else str(error))
             return
         if isinstance(error, EnvironmentMismatch):
             raise CodebenchError(f"{error}; install the same versions on the workers so counts stay reproducible")
         future.result()  # re-raises the worker's own error (for example a DecoderError)
+
+    def _resubmit(self, task: BatchTask, attempt: int, reason: str) -> None:
+        self._check_connection()
+        if attempt >= RESUBMITS:
+            raise ClusterError(
+                f"batch {task.batch_index} of point {task.point_key[:12]} was lost {attempt + 1} times "
+                f"(last: {reason}); its workers may be short of memory: lower engine.batch_bytes or give "
+                "the workers more memory"
+            )
+        self.resubmitted += 1
+        self.submit(task, attempt + 1)
 
     def in_flight(self) -> int:
         return len(self._tasks)
@@ -163,6 +196,8 @@ class DaskExecutor(Executor):
                 resource.close(timeout=10 if wait else 5)
         except Exception as exc:  # closing is best effort: the batches that matter are stored
             print(f"codebench: closing the Dask cluster: {type(exc).__name__}: {exc}", file=sys.stderr)
+        finally:
+            self._client_log.setLevel(self._client_log_level)
 
 
 def start_dask_executor(spec: ClusterSpec) -> DaskExecutor:
