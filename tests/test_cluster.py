@@ -37,7 +37,7 @@ from distributed import Client, LocalCluster
 from codebench.api import load_results, run_sweep
 from codebench.config import load_sweep
 from codebench.engine.cluster import ClusterSpec, parse_cluster
-from codebench.engine.dask_executor import DaskExecutor, batch_system_cluster
+from codebench.engine.dask_executor import DaskExecutor, batch_system_cluster, start_dask_executor
 from codebench.engine.executors import InProcessExecutor
 from codebench.errors import ConfigError
 from test_engine import CLI, batch_rows, cli, counts, reap_group, row_count, write
@@ -87,12 +87,17 @@ def stop_group(proc: subprocess.Popen[str]) -> None:
     reap_group(proc.pid, grace=10)
 
 
+def executing(dask_worker: Any) -> int:
+    """Batches the worker is running at this moment (run on the worker's event loop)."""
+    return len(dask_worker.state.executing)
+
+
 def kill_a_busy_worker(client: Client) -> int:
     """SIGKILL a worker process that is running a batch right now; returns its pid."""
     pids: dict[str, int] = client.run(os.getpid)
     deadline = time.monotonic() + 30
     while time.monotonic() < deadline:
-        busy = [address for address, keys in client.processing().items() if keys and address in pids]
+        busy = [address for address, count in client.run(executing).items() if count and address in pids]
         if busy:
             os.kill(pids[busy[0]], signal.SIGKILL)
             return pids[busy[0]]
@@ -163,6 +168,15 @@ def test_dask_counts_equal_local_counts(sweep_file: Path, reference: tuple[Path,
     shared = local_rows.keys() & dask_rows.keys()
     assert len(shared) >= int(ref["batches"].sum())
     assert all(local_rows[key] == dask_rows[key] for key in shared)
+
+
+def test_threads_sharing_a_worker_give_the_same_counts(sweep_file: Path, reference: tuple[Path, pd.DataFrame],
+                                                        tmp_path: Path) -> None:
+    # Two batches of one point at once in one worker process: each thread has its own
+    # compiled decoder (a decoder object is not shared between threads).
+    executor = start_dask_executor(ClusterSpec(local_workers=1, threads_per_worker=2))
+    frame = run_sweep(sweep_file, out=tmp_path, executor=executor, progress=False)
+    assert counts(frame) == counts(reference[1])
 
 
 def test_worker_killed_mid_batch_changes_no_count(sweep_file: Path, reference: tuple[Path, pd.DataFrame],

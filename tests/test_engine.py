@@ -27,6 +27,7 @@ surface code: (d^2 - 1)/2 checks of each type, so (d^2 - 1) r.
 from __future__ import annotations
 
 import io
+import json
 import math
 import os
 import random
@@ -567,6 +568,38 @@ def test_foreign_store_is_refused_and_left_untouched(make: Any, grid_file: Path,
         run_sweep(grid_file, out=out, workers=1, progress=False)
     assert target.read_bytes() == content
     assert sorted(p.name for p in out.iterdir()) == listing
+
+
+THREADED_BATCHES = """
+import json, sys, threading
+from codebench.engine.points import Point
+from codebench.engine.worker import BatchTask, run_batch
+point = Point(code="rotated_surface", distance=3, rounds=3, basis="Z", noise="si1000", p=0.002, decoder="mwpm")
+tasks = [BatchTask(point.key(1), point.params(), i, 2048, 100 + i) for i in range(16)]
+failures = {}
+def work(part):
+    for task in part:
+        failures[task.batch_index] = run_batch(task).failures
+threads = [threading.Thread(target=work, args=(tasks[k::4],)) for k in range(4)]
+for t in threads: t.start()
+for t in threads: t.join()
+print(json.dumps([failures[i] for i in range(16)]))
+"""
+
+
+def test_batches_on_four_threads_of_a_fresh_process_finish_with_sequential_counts() -> None:
+    # A Dask worker may run several batches at once on threads. The first concurrent
+    # samples of a fresh process used to deadlock inside stim's lazy imports.
+    for _ in range(3):
+        done = subprocess.run([sys.executable, "-c", THREADED_BATCHES], capture_output=True, text=True, timeout=60)
+        assert done.returncode == 0, done.stderr
+        threaded = json.loads(done.stdout)
+    from codebench.engine.points import Point
+    from codebench.engine.worker import BatchTask, run_batch
+
+    point = Point(code="rotated_surface", distance=3, rounds=3, basis="Z", noise="si1000", p=0.002, decoder="mwpm")
+    sequential = [run_batch(BatchTask(point.key(1), point.params(), i, 2048, 100 + i)).failures for i in range(16)]
+    assert threaded == sequential
 
 
 def test_store_killed_before_its_first_checkpoint_is_still_ours(tmp_path: Path) -> None:

@@ -110,8 +110,30 @@ def count_failures(predicted: np.ndarray, actual: np.ndarray) -> int:
     return int(np.count_nonzero(np.any(predicted != actual, axis=1)))
 
 
+_warm_lock = threading.Lock()
+_warmed = False
+
+
+def _warm_up_sampler() -> None:
+    """Sample a one-qubit circuit once per process, under a lock, before any batch.
+
+    stim imports modules lazily on its first bit-packed sample; two threads
+    doing that first sample at once deadlocked in the import machinery about
+    half the time (seen with 4 threads of one Dask worker). After one sample
+    in the process, concurrent sampling is safe.
+    """
+    global _warmed
+    with _warm_lock:
+        if not _warmed:
+            tiny = stim.Circuit("X_ERROR(0.5) 0\nM 0\nDETECTOR rec[-1]\nOBSERVABLE_INCLUDE(0) rec[-1]")
+            tiny.compile_detector_sampler(seed=0).sample(1, separate_observables=True, bit_packed=True)
+            _warmed = True
+
+
 def run_batch(task: BatchTask) -> BatchResult:
     """Sample and decode one batch; pure function of the task."""
+    if not _warmed:
+        _warm_up_sampler()
     point = compiled(task.point_key, task.params)
     start = time.perf_counter()
     sampler = point.circuit.compile_detector_sampler(seed=task.seed)
