@@ -72,7 +72,8 @@ class Store:
 
     def __init__(self, path: str | Path, create: bool = True) -> None:
         self.path = Path(path)
-        existed = self.path.exists()
+        # An empty file holds nothing to lose (a run killed before its first write): start it afresh.
+        existed = self.path.exists() and (self.path.is_dir() or self.path.stat().st_size > 0)
         if not existed and not create:
             raise StoreError(f"no results store at '{self.path}'.")
         if existed:

@@ -570,6 +570,16 @@ def test_foreign_store_is_refused_and_left_untouched(make: Any, grid_file: Path,
     assert sorted(p.name for p in out.iterdir()) == listing
 
 
+def test_empty_store_file_is_started_afresh(tmp_path: Path) -> None:
+    # A run killed between creating the file and its first write leaves 0 bytes: nothing to lose.
+    (tmp_path / "results.sqlite").touch()
+    config = {"name": "empty", "seed": 2, "stopping": {"shot_budget": 3000},
+              "study": [{"code": "repetition", "distances": [3], "rounds": 2, "noise": "code_capacity",
+                         "p": [0.05], "decoders": ["mwpm"]}]}
+    frame = run_sweep(config, out=tmp_path, workers=1, progress=False)
+    assert int(frame["shots"].sum()) == 3000
+
+
 THREADED_BATCHES = """
 import json, sys, threading
 from codebench.engine.points import Point
