@@ -83,8 +83,9 @@ GRID_TARGET = 80
 GRID_BUDGET = 20000
 
 # A sweep that runs for about a second of sampling on two workers, in
-# batches of 1024 shots (batch_bytes at its minimum), so a signal sent after
-# a few committed batches always lands mid-sweep.
+# batches of 1024 shots (batch_bytes holds 1024 shots of its 120 detectors,
+# 15 bytes each), so a signal sent after a few committed batches always lands
+# mid-sweep.
 LONG_TOML = """\
 name = "long"
 seed = 5
@@ -94,7 +95,7 @@ failure_target = 3000
 shot_budget = 1000000
 
 [engine]
-batch_bytes = 1024
+batch_bytes = 15360
 
 [[study]]
 code = "rotated_surface"
@@ -568,6 +569,18 @@ def test_foreign_store_is_refused_and_left_untouched(make: Any, grid_file: Path,
         run_sweep(grid_file, out=out, workers=1, progress=False)
     assert target.read_bytes() == content
     assert sorted(p.name for p in out.iterdir()) == listing
+
+
+def test_batches_hold_at_most_batch_bytes_of_detection_events(tmp_path: Path) -> None:
+    config = {"name": "bytes", "seed": 4, "stopping": {"shot_budget": 3000, "failure_target": 10**6},
+              "engine": {"batch_bytes": 4096},
+              "study": [{"code": "rotated_surface", "distances": [5], "rounds": 5, "noise": "si1000",
+                         "p": [0.002], "decoders": ["mwpm"]}]}
+    frame = run_sweep(config, out=tmp_path, workers=1, progress=False)
+    per_shot = (int(frame.loc[0, "detectors"]) + 7) // 8  # bit-packed bytes of one shot's detection events
+    rows = batch_rows(tmp_path / "results.sqlite")
+    assert sum(shots for _, _, shots, _ in rows) == 3000
+    assert max(shots for _, _, shots, _ in rows) == 4096 // per_shot  # the cap is reached, never passed
 
 
 def test_empty_store_file_is_started_afresh(tmp_path: Path) -> None:

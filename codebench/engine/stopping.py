@@ -44,9 +44,13 @@ class Stopping:
 
 
 def batch_cap(num_detectors: int, batch_bytes: int = DEFAULT_BATCH_BYTES) -> int:
-    """Largest batch whose bit-packed detection events fit in ``batch_bytes``."""
+    """Largest batch whose bit-packed detection events fit in ``batch_bytes`` (at least one shot).
+
+    >>> batch_cap(3360), batch_cap(3360, 1_000_000)
+    (79891, 2380)
+    """
     per_shot = max(1, (num_detectors + 7) // 8)
-    return max(FIRST_BATCH, min(MAX_BATCH_SHOTS, batch_bytes // per_shot))
+    return max(1, min(MAX_BATCH_SHOTS, batch_bytes // per_shot))
 
 
 def batch_sizes(shot_budget: int, cap: int) -> list[int]:
