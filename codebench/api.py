@@ -13,7 +13,7 @@ from typing import Any, Mapping
 import pandas as pd
 
 from codebench.config import Sweep, load_sweep, parse_sweep
-from codebench.engine.cluster import ClusterSpec, scheduler_address
+from codebench.engine.cluster import ClusterSpec, require_packages, scheduler_address
 from codebench.engine.executors import Executor, make_executor
 from codebench.engine.progress import Progress
 from codebench.engine.runner import RunPlan, StopSignals, describe, execute
@@ -112,6 +112,8 @@ def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progre
     if folder.exists() and not folder.is_dir():
         raise ConfigError(not_allowed("--out", str(folder), "a folder (or a path that does not exist yet)"))
     store_path = folder / STORE_NAME
+    if executor is None and where[1] is not None:
+        require_packages(where[1])
     if store_path.exists():
         Store(store_path).close()  # refuses a foreign or damaged file before anything is created
     with RunLock(folder):  # one writer per folder; refused while another live run holds it

@@ -18,11 +18,12 @@ without it.
 
 from __future__ import annotations
 
+import importlib.util
 import re
 from dataclasses import dataclass, field
 from typing import Any
 
-from codebench.errors import ConfigError, not_allowed
+from codebench.errors import CodebenchError, ConfigError, not_allowed
 
 #: ``batch_system`` names and the dask-jobqueue classes they start.
 BATCH_SYSTEMS = {
@@ -152,3 +153,14 @@ def _count(table: dict[str, Any], key: str, least: int, default: int | None = No
     if isinstance(value, bool) or not isinstance(value, int) or value < least:
         raise ConfigError(not_allowed(f"cluster.{key}", value, f"an integer >= {least}"))
     return value
+
+
+INSTALL_HINT = "install the cluster extra: pip install -e '.[cluster]' (in a checkout of codebench)"
+
+
+def require_packages(spec: ClusterSpec) -> None:
+    """Refuse, before anything is started or written, a cluster whose Dask packages are missing."""
+    needed = ["distributed"] + (["dask_jobqueue"] if spec.batch_system is not None else [])
+    missing = [name for name in needed if importlib.util.find_spec(name) is None]
+    if missing:
+        raise CodebenchError(f"running on a Dask cluster needs {' and '.join(missing)}: {INSTALL_HINT}")

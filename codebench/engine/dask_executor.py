@@ -25,18 +25,14 @@ import uuid
 from concurrent.futures import CancelledError
 from typing import Any
 
-from codebench.engine.cluster import BATCH_SYSTEMS, ClusterSpec
+from codebench.engine.cluster import BATCH_SYSTEMS, ClusterSpec, require_packages
 from codebench.engine.executors import Executor
 from codebench.engine.worker import BatchResult, BatchTask, EnvironmentMismatch, environment, run_batch_checked
 from codebench.errors import ClusterError, CodebenchError, ConfigError, not_allowed
 
-try:
-    import dask
-    import distributed
-
-    HAVE_DISTRIBUTED = True
-except ImportError:  # only without the cluster extra
-    HAVE_DISTRIBUTED = False
+# Imported only when a sweep runs on a cluster (after cluster.require_packages).
+import dask
+import distributed
 
 #: Resubmissions of one batch after the scheduler gave up on it (KilledWorker).
 RESUBMITS = 2
@@ -49,7 +45,6 @@ LOCAL_WORKER_CONFIG = {
     "distributed.worker.profile.enabled": False,
     "distributed.admin.system-monitor.interval": "5s",
 }
-_INSTALL_HINT = "running on a Dask cluster needs the cluster extra: pip install 'codebench[cluster]'"
 
 
 class DaskExecutor(Executor):
@@ -202,8 +197,7 @@ class DaskExecutor(Executor):
 
 def start_dask_executor(spec: ClusterSpec) -> DaskExecutor:
     """Connect to (or start) the cluster ``spec`` describes."""
-    if not HAVE_DISTRIBUTED:
-        raise CodebenchError(_INSTALL_HINT)
+    require_packages(spec)
     if spec.scheduler is not None:
         client = _connect(spec.scheduler, spec.connect_timeout)
         return DaskExecutor(client, [client])
@@ -230,10 +224,8 @@ def start_dask_executor(spec: ClusterSpec) -> DaskExecutor:
 
 def batch_system_cluster(spec: ClusterSpec) -> Any:
     """The dask-jobqueue cluster of ``spec``, with no job submitted yet (see its ``job_script()``)."""
-    try:
-        import dask_jobqueue
-    except ImportError:
-        raise CodebenchError(_INSTALL_HINT) from None
+    require_packages(spec)
+    import dask_jobqueue
     assert spec.batch_system is not None
     class_name = BATCH_SYSTEMS[spec.batch_system]
     cluster_class = getattr(dask_jobqueue, class_name)
