@@ -35,8 +35,11 @@ class RunLock:
         self._handle: IO[str] | None = None
 
     def acquire(self) -> None:
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        handle = self.path.open("a+", encoding="utf-8")
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            handle = self.path.open("a+", encoding="utf-8")
+        except OSError as exc:
+            raise StoreError(f"cannot write into '{self.path.parent}': {exc.strerror or exc}.") from None
         try:
             fcntl.flock(handle.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
@@ -46,6 +49,12 @@ class RunLock:
             raise StoreError(
                 f"'{self.path.parent}' is being written by another codebench run ({holder}); "
                 "wait for it to finish or stop it, then run again (it resumes)."
+            ) from None
+        except OSError as exc:  # a file system without locks (ENOLCK, EOPNOTSUPP)
+            handle.close()
+            raise StoreError(
+                f"cannot lock '{self.path}' ({exc.strerror or exc}): this file system offers no file locks; "
+                "choose an --out folder on a local disk or on NFS."
             ) from None
         handle.seek(0)
         handle.truncate()

@@ -165,6 +165,9 @@ class DaskExecutor(Executor):
             return
         if isinstance(error, EnvironmentMismatch):
             raise CodebenchError(f"{error}; install the same versions on the workers so counts stay reproducible")
+        if isinstance(error, ImportError):  # the task could not even be unpacked on the worker
+            raise ClusterError(f"a Dask worker cannot import what a batch needs ({error}); install codebench "
+                               "and the sweep's plug-in decoders in the workers' environment")
         future.result()  # re-raises the worker's own error (for example a DecoderError)
 
     def _resubmit(self, task: BatchTask, attempt: int, reason: str) -> None:
