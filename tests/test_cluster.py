@@ -39,7 +39,7 @@ from codebench.config import load_sweep
 from codebench.engine.cluster import ClusterSpec, parse_cluster
 from codebench.engine.dask_executor import DaskExecutor, batch_system_cluster, start_dask_executor
 from codebench.engine.executors import InProcessExecutor
-from codebench.errors import ConfigError
+from codebench.errors import CodebenchError, ConfigError
 from test_engine import CLI, batch_rows, cli, counts, reap_group, row_count, write
 
 # Two points stop on the failure target, two on the shot budget; the largest
@@ -410,6 +410,14 @@ walltime = "01:30:00"
         assert line in script, script
     with pytest.raises(ConfigError, match=r"cluster\.options\.no_such_option must be absent: .*walltime"):
         batch_system_cluster(ClusterSpec(batch_system="slurm", jobs=1, options={"no_such_option": 1}))
+
+
+def test_workers_with_other_libraries_are_refused_before_any_batch(client: Client) -> None:
+    executor = DaskExecutor(client)
+    executor._expected = {**executor._expected, "stim": "0.0.1"}  # as if the coordinator had another stim
+    with pytest.raises(CodebenchError, match=r"Dask worker tcp://\S+ differs from the coordinator: stim .*0\.0\.1"):
+        _ = executor.capacity  # looks at the workers
+    executor.close()
 
 
 def test_worker_with_other_libraries_is_refused(tmp_path: Path) -> None:

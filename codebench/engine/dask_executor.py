@@ -67,6 +67,7 @@ class DaskExecutor(Executor):
         self.workers_lost = 0
         self.resubmitted = 0
         self._stop: ClusterError | None = None
+        self._checked: set[str] = set()
         # The client logs its reconnection attempts with tracebacks; a lost scheduler is
         # reported by codebench itself, in one line. Restored on close.
         self._client_log = logging.getLogger("distributed.client")
@@ -86,7 +87,28 @@ class DaskExecutor(Executor):
             return
         current = {address: int(w.get("nthreads", 1)) for address, w in info.get("workers", {}).items()}
         self.workers_lost += len(set(self._workers) - set(current))
+        new = sorted(set(current) - self._checked)
+        if new:
+            self._check_environment(new)
         self._workers = current
+
+    def _check_environment(self, addresses: list[str]) -> None:
+        """Refuse workers that cannot import codebench or whose libraries differ, before they get a batch."""
+        try:
+            answers = self._client.run(environment, workers=addresses, on_error="return")
+        except (OSError, TimeoutError):  # a worker that just left: the next poll sees who is there
+            return
+        for address, answer in sorted(answers.items()):
+            if isinstance(answer, BaseException):
+                raise CodebenchError(f"Dask worker {address} cannot run codebench ({answer}); install codebench "
+                                     "and the sweep's plug-in decoders in the workers' environment")
+            differing = sorted(k for k in set(answer) | set(self._expected) if answer.get(k) != self._expected.get(k))
+            if differing:
+                details = ", ".join(f"{k} {answer.get(k, 'missing')} (coordinator: {self._expected.get(k, 'missing')})"
+                                    for k in differing)
+                raise CodebenchError(f"Dask worker {address} differs from the coordinator: {details}; install the "
+                                     "same versions on the workers so counts stay reproducible")
+            self._checked.add(address)
 
     @property
     def capacity(self) -> int:
