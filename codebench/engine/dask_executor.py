@@ -119,6 +119,8 @@ class DaskExecutor(Executor):
 
     def note(self) -> str:
         self._poll_workers()
+        if not self._workers:
+            return "waiting for Dask workers to join"
         text = f"{len(self._workers)} Dask workers"
         if self.workers_lost:
             text += f", {self.workers_lost} lost"
