@@ -27,7 +27,14 @@ from typing import Any
 
 from codebench.engine.cluster import BATCH_SYSTEMS, ClusterSpec, require_packages
 from codebench.engine.executors import Executor
-from codebench.engine.worker import BatchResult, BatchTask, EnvironmentMismatch, environment, run_batch_checked
+from codebench.engine.worker import (
+    BatchResult,
+    BatchTask,
+    EnvironmentMismatch,
+    environment,
+    environment_difference,
+    run_batch_checked,
+)
 from codebench.errors import ClusterError, CodebenchError, ConfigError, not_allowed
 
 # Imported only when a sweep runs on a cluster (after cluster.require_packages).
@@ -102,10 +109,8 @@ class DaskExecutor(Executor):
             if isinstance(answer, BaseException):
                 raise CodebenchError(f"Dask worker {address} cannot run codebench ({answer}); install codebench "
                                      "and the sweep's plug-in decoders in the workers' environment")
-            differing = sorted(k for k in set(answer) | set(self._expected) if answer.get(k) != self._expected.get(k))
-            if differing:
-                details = ", ".join(f"{k} {answer.get(k, 'missing')} (coordinator: {self._expected.get(k, 'missing')})"
-                                    for k in differing)
+            details = environment_difference(answer, self._expected)
+            if details:
                 raise CodebenchError(f"Dask worker {address} differs from the coordinator: {details}; install the "
                                      "same versions on the workers so counts stay reproducible")
             self._checked.add(address)

@@ -194,13 +194,21 @@ def run_batch_checked(task: BatchTask, expected: dict[str, str]) -> BatchResult:
     Used where workers are other machines: a batch drawn with another stim or
     decoder version would silently give other counts for the same seed.
     """
-    mine = environment()
-    differing = sorted(k for k in set(expected) | set(mine) if expected.get(k) != mine.get(k))
-    if differing:
-        details = ", ".join(f"{k} {mine.get(k, 'missing')} (coordinator: {expected.get(k, 'missing')})"
-                            for k in differing)
+    details = environment_difference(environment(), expected)
+    if details:
         raise EnvironmentMismatch(f"worker on {platform.node()} differs from the coordinator: {details}")
     return run_batch(task)
+
+
+def environment_difference(worker: dict[str, str], coordinator: dict[str, str]) -> str:
+    """What differs between two :func:`environment` answers, readably; ``''`` when nothing does.
+
+    >>> environment_difference({"stim": "1.15"}, {"stim": "1.16"})
+    'stim 1.15 (coordinator: 1.16)'
+    """
+    differing = sorted(k for k in set(worker) | set(coordinator) if worker.get(k) != coordinator.get(k))
+    return ", ".join(f"{k} {worker.get(k, 'missing')} (coordinator: {coordinator.get(k, 'missing')})"
+                     for k in differing)
 
 
 #: Shots drawn from the sampler at once, at most (fewer for large circuits).
