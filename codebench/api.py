@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import json
 import platform
 import sys
@@ -116,11 +117,24 @@ def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progre
         require_packages(where[1])
     if store_path.exists():
         Store(store_path).close()  # refuses a foreign or damaged file before anything is created
-    with RunLock(folder):  # one writer per folder; refused while another live run holds it
+    fresh = not folder.exists()
+    lock = RunLock(folder)  # one writer per folder; refused while another live run holds it
+    lock.acquire()
+    try:
         run_executor = executor if executor is not None else make_executor(*where)
-        if progress and run_executor.summary():
-            print(f"{sweep.name}: running on {run_executor.summary()}", file=sys.stderr)
-        return _record(sweep, folder, members, run_executor, progress)
+        try:
+            if progress and run_executor.summary():
+                print(f"{sweep.name}: running on {run_executor.summary()}", file=sys.stderr)
+            return _record(sweep, folder, members, run_executor, progress)
+        finally:
+            if executor is None:  # ours: already closed after a run, not yet if it failed before one
+                run_executor.close(wait=False)
+    finally:
+        lock.release()
+        if fresh and not store_path.exists():  # failed before any result (cluster unreachable...): leave no trace
+            lock.path.unlink(missing_ok=True)
+            with contextlib.suppress(OSError):
+                folder.rmdir()
 
 
 def _record(sweep: Sweep, folder: Path, members: list[tuple[StoredPoint, str]], run_executor: Executor,

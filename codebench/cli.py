@@ -286,7 +286,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"codebench: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except (KeyboardInterrupt, Interrupted):
-        print("\ncodebench: interrupted; finished batches are stored, rerun to resume.", file=sys.stderr)
+        # A progress line on a terminal ends without a newline: start a line of our own.
+        start = "\n" if sys.stderr.isatty() else ""
+        print(f"{start}codebench: interrupted; finished batches are stored, rerun to resume.", file=sys.stderr)
         return EXIT_INTERRUPTED
 
 

@@ -81,4 +81,4 @@ def _describe(text: str) -> str:
         holder = json.loads(text)
         return f"pid {holder['pid']} on host {holder['host']}, since {holder['started']}"
     except (ValueError, KeyError, TypeError):
-        return "holder unknown"
+        return "holder just starting"

@@ -23,6 +23,7 @@ import os
 import signal
 import sqlite3
 import subprocess
+import sys
 import threading
 import time
 from contextlib import closing
@@ -333,6 +334,8 @@ def test_damaged_store_is_refused_untouched(sweep_file: Path, reference: tuple[P
 
 def test_cluster_section_forms() -> None:
     assert parse_cluster({"scheduler": "head:8786"}) == ClusterSpec(scheduler="tcp://head:8786")
+    assert parse_cluster({"scheduler": "[::1]:8786"}).scheduler == "tcp://[::1]:8786"
+    assert parse_cluster({"scheduler": "tls://10.0.0.7:8786"}).scheduler == "tls://10.0.0.7:8786"
     assert parse_cluster({"local_workers": 4}).local_workers == 4
     spec = parse_cluster({"batch_system": "slurm", "adapt_minimum": 0, "adapt_maximum": 20,
                           "options": {"cores": 8, "memory": "16GB"}})
@@ -354,6 +357,15 @@ def test_cluster_section_forms() -> None:
         ({"batch_system": "pbs", "jobs": 1, "options": 3}, "cluster.options"),
         ({"local_workers": 2, "nodes": 3}, "cluster.nodes"),
         ({"scheduler": "tcp://a:1", "connect_timeout": -1}, "cluster.connect_timeout"),
+        ({"scheduler": "tcp://head:notaport"}, "cluster.scheduler"),
+        ({"scheduler": "tcp://head"}, "cluster.scheduler"),
+        ({"scheduler": "head:99999"}, "cluster.scheduler"),
+        ({"local_workers": 2, "connect_timeout": 5}, "cluster.connect_timeout"),
+        ({"batch_system": "slurm", "adapt_minimum": 1}, "cluster.adapt_maximum is missing"),
+        ({"batch_system": "slurm", "jobs": 1, "options": {"cores": "one"}}, "cluster.options.cores"),
+        ({"batch_system": "slurm", "jobs": 1, "options": {"memory": 8}}, "cluster.options.memory"),
+        ({"batch_system": "slurm", "jobs": 1, "options": {"queue_name": "x"}}, "cluster.options.queue_name"),
+        ({"batch_system": "slurm", "jobs": 1, "options": {"n_workers": 3}}, "cluster.options.n_workers"),
     ],
 )
 def test_bad_cluster_section_is_named(table: dict[str, Any], named: str) -> None:
@@ -380,7 +392,29 @@ def test_unreachable_scheduler_is_one_clear_error(sweep_file: Path, tmp_path: Pa
     assert done.returncode == 2
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and "cannot reach the Dask scheduler at 'tcp://127.0.0.1:9'" in lines[0], done.stderr
-    assert not (tmp_path / "out" / "results.sqlite").exists()
+    assert not (tmp_path / "out").exists()  # the folder made for the lock is gone again
+
+
+def test_importing_dask_jobqueue_leaves_ctrl_c_to_codebench() -> None:
+    # dask_jobqueue's import installs a SIGINT handler that calls sys.exit() (a silent exit 0
+    # on Ctrl-C); codebench imports it so that the handler in place stays.
+    code = ("import signal; from codebench.engine.jobqueue_options import import_jobqueue; "
+            "before = signal.getsignal(signal.SIGINT); import_jobqueue(); "
+            "assert signal.getsignal(signal.SIGINT) is before is signal.default_int_handler")
+    subprocess.run([sys.executable, "-c", code], check=True, timeout=60)
+
+
+def test_batch_system_without_its_submit_command_is_one_clear_error(tmp_path: Path) -> None:
+    # This machine has no SLURM: starting the cluster must say so at once, not wait for workers forever.
+    sweep = write(tmp_path / "slurm.toml", CLUSTER_TOML + '\n[cluster]\nbatch_system = "slurm"\njobs = 1\n'
+                  '[cluster.options]\ncores = 1\nmemory = "1GB"\n')
+    env = {**os.environ, "PATH": str(Path(sys.executable).parent)}  # no sbatch anywhere on it
+    done = subprocess.run([*CLI, "sweep", str(sweep), "--out", str(tmp_path / "out"), "--quiet"],
+                          capture_output=True, text=True, timeout=120, env=env)
+    assert done.returncode == 2, done.stderr
+    lines = done.stderr.strip().splitlines()
+    assert len(lines) == 1 and "'sbatch' is not on this machine's PATH" in lines[0], done.stderr
+    assert not (tmp_path / "out").exists()
 
 
 def test_batch_system_options_reach_the_job_script(tmp_path: Path) -> None:

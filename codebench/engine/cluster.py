@@ -48,8 +48,8 @@ CLUSTER_KEYS = (
     "connect_timeout",
 )
 _WAYS = ("scheduler", "local_workers", "batch_system")
-_ADDRESS = re.compile(r"(tcp|tls|inproc|ucx|ws|wss)://\S+|[A-Za-z0-9_.\-]+:\d+")
-ADDRESS_ALLOWED = "a Dask scheduler address such as 'tcp://head-node:8786'"
+_ADDRESS = re.compile(r"(?:(?P<scheme>tcp|tls|ucx|ws|wss)://)?(?P<host>[A-Za-z0-9_.\-]+|\[[0-9A-Fa-f:.]+\]):(?P<port>\d+)")
+ADDRESS_ALLOWED = "a Dask scheduler address HOST:PORT such as 'tcp://head-node:8786' (port 1 to 65535)"
 
 
 @dataclass(frozen=True)
@@ -81,10 +81,10 @@ def scheduler_address(value: object, path: str) -> str:
     >>> scheduler_address("head:8786", "--scheduler")
     'tcp://head:8786'
     """
-    if not isinstance(value, str) or _ADDRESS.fullmatch(value.strip()) is None:
+    match = _ADDRESS.fullmatch(value.strip()) if isinstance(value, str) else None
+    if match is None or not 1 <= int(match["port"]) <= 65535:
         raise ConfigError(not_allowed(path, value, ADDRESS_ALLOWED))
-    text = value.strip()
-    return text if "://" in text else f"tcp://{text}"
+    return f"{match['scheme'] or 'tcp'}://{match['host']}:{int(match['port'])}"
 
 
 def parse_cluster(table: object) -> ClusterSpec:
@@ -100,6 +100,7 @@ def parse_cluster(table: object) -> ClusterSpec:
                                       "exactly one of scheduler, local_workers, batch_system"))
     way = ways[0]
     _only_with(table, way, "threads_per_worker", ("local_workers",))
+    _only_with(table, way, "connect_timeout", ("scheduler", "batch_system"))
     for key in ("jobs", "adapt_minimum", "adapt_maximum", "options"):
         _only_with(table, way, key, ("batch_system",))
     spec: dict[str, Any] = {}
@@ -127,6 +128,10 @@ def _batch_system(table: dict[str, Any]) -> dict[str, Any]:
     if adaptive == ("jobs" in table):
         raise ConfigError(not_allowed("cluster.jobs", table.get("jobs", "absent"),
                                       "given alone, or replaced by adapt_minimum and adapt_maximum"))
+    if adaptive and not ("adapt_minimum" in table and "adapt_maximum" in table):
+        given, absent = ("adapt_minimum", "adapt_maximum") if "adapt_minimum" in table else ("adapt_maximum",
+                                                                                               "adapt_minimum")
+        raise ConfigError(f"cluster.{absent} is missing; {given} and {absent} go together.")
     if adaptive:
         low = _count(table, "adapt_minimum", 0)
         high = _count(table, "adapt_maximum", 1)
@@ -139,8 +144,33 @@ def _batch_system(table: dict[str, Any]) -> dict[str, Any]:
     if not isinstance(options, dict):
         raise ConfigError(not_allowed("cluster.options", options, "a table ([cluster.options]) of "
                                       f"arguments for dask_jobqueue.{BATCH_SYSTEMS[name]}"))
+    _check_options(name, options)
     out["options"] = dict(options)
     return out
+
+
+#: Options whose type is checked here (dask-jobqueue's own errors do not name them).
+_COUNT_OPTIONS = ("cores", "processes")
+_TEXT_OPTIONS = ("memory", "walltime", "queue", "account", "project")
+
+
+def _check_options(batch_system: str, options: dict[str, Any]) -> None:
+    for key in _COUNT_OPTIONS:
+        value = options.get(key, 1)
+        if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+            raise ConfigError(not_allowed(f"cluster.options.{key}", value, "an integer >= 1"))
+    for key in _TEXT_OPTIONS:
+        if key in options and not isinstance(options[key], str):
+            raise ConfigError(not_allowed(f"cluster.options.{key}", options[key], "a string"))
+    if importlib.util.find_spec("dask_jobqueue") is None:
+        return  # names are checked when the cluster starts (where the package must be present)
+    from codebench.engine.jobqueue_options import accepted_options
+
+    allowed = accepted_options(BATCH_SYSTEMS[batch_system])
+    for key, value in options.items():
+        if key not in allowed:
+            raise ConfigError(not_allowed(f"cluster.options.{key}", value, f"absent: dask_jobqueue."
+                                          f"{BATCH_SYSTEMS[batch_system]} takes " + ", ".join(sorted(allowed))))
 
 
 def _only_with(table: dict[str, Any], way: str, key: str, ways: tuple[str, ...]) -> None:

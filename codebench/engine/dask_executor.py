@@ -17,15 +17,19 @@ resubmitted a few more times before the sweep stops with a clear error.
 
 from __future__ import annotations
 
-import inspect
+import functools
 import logging
+import shutil
+import signal
 import sys
+import threading
 import time
 import uuid
 from concurrent.futures import CancelledError
-from typing import Any
+from typing import Any, Callable
 
 from codebench.engine.cluster import BATCH_SYSTEMS, ClusterSpec, require_packages
+from codebench.engine.jobqueue_options import accepted_options, import_jobqueue
 from codebench.engine.executors import Executor
 from codebench.engine.worker import (
     BatchResult,
@@ -75,6 +79,7 @@ class DaskExecutor(Executor):
         self.resubmitted = 0
         self._stop: ClusterError | None = None
         self._checked: set[str] = set()
+        self._closed = False
         # The client logs its reconnection attempts with tracebacks; a lost scheduler is
         # reported by codebench itself, in one line. Restored on close.
         self._client_log = logging.getLogger("distributed.client")
@@ -167,17 +172,17 @@ class DaskExecutor(Executor):
             try:
                 if future.status == "finished":
                     results.append(future.result())
-                else:
+                elif self._stop is None:
                     self._failed(future, task, attempt)
             except CancelledError:  # finished, but the connection went before its result came
-                self._resubmit(task, attempt, "cancelled")
+                if self._stop is None:
+                    self._resubmit(task, attempt, "cancelled")
             except ClusterError as stop:
-                if not results:
-                    raise
-                self._stop = stop  # hand over the results first, so that they are committed
-                break
+                self._stop = stop  # the run ends; first hand over every finished result, to be committed
             finally:
                 future.release()
+        if self._stop is not None and not results:
+            raise self._stop
         return results
 
     def _check_connection(self) -> None:
@@ -214,17 +219,25 @@ class DaskExecutor(Executor):
         return len(self._tasks)
 
     def close(self, wait: bool = True) -> None:
+        if self._closed:
+            return
+        self._closed = True
         pending = list(self._tasks)
         self._tasks.clear()
-        try:
-            if pending:
-                self._client.cancel(pending, force=True)
-            for resource in self._owned:  # the client before the cluster it talks to
-                resource.close(timeout=10 if wait else 5)
-        except Exception as exc:  # closing is best effort: the batches that matter are stored
-            print(f"codebench: closing the Dask cluster: {type(exc).__name__}: {exc}", file=sys.stderr)
-        finally:
-            self._client_log.setLevel(self._client_log_level)
+        # Closing is best effort (the batches that matter are stored), and each step is
+        # tried even if the one before failed, so that no cluster is left running.
+        steps: list[Callable[[], object]] = []
+        if pending:
+            steps.append(functools.partial(self._client.cancel, pending, force=True))
+        for resource in self._owned:  # the client before the cluster it talks to
+            steps.append(functools.partial(resource.close, timeout=10 if wait else 5))
+        for step in steps:
+            try:
+                step()
+            except Exception as exc:
+                if self._client.status == "running":  # after a lost scheduler, failures here are expected
+                    print(f"codebench: closing the Dask cluster: {type(exc).__name__}: {exc}", file=sys.stderr)
+        self._client_log.setLevel(self._client_log_level)
 
 
 def start_dask_executor(spec: ClusterSpec) -> DaskExecutor:
@@ -233,35 +246,64 @@ def start_dask_executor(spec: ClusterSpec) -> DaskExecutor:
     if spec.scheduler is not None:
         client = _connect(spec.scheduler, spec.connect_timeout)
         return DaskExecutor(client, [client])
-    if spec.local_workers is not None:
-        # Worker processes write to this terminal; Dask's own shutdown races (a heartbeat
-        # meeting a closing connection) would print tracebacks there. Lost workers and
-        # resubmitted batches are reported on the progress line instead.
+    cluster = _local_cluster(spec) if spec.local_workers is not None else _batch_system_started(spec)
+    try:
+        client = distributed.Client(cluster, timeout=spec.connect_timeout)
+    except BaseException:
+        cluster.close()
+        raise
+    return DaskExecutor(client, [client, cluster])
+
+
+def _local_cluster(spec: ClusterSpec) -> Any:
+    # Worker processes write to this terminal; Dask's own shutdown races (a heartbeat
+    # meeting a closing connection) would print tracebacks there. Lost workers and
+    # resubmitted batches are reported on the progress line instead. SIGINT is ignored
+    # while the workers start: they inherit that (an ignored signal survives exec), so a
+    # Ctrl-C during start-up cannot kill them half-imported; once up, the preloaded
+    # hook keeps ignoring it, also in workers restarted later.
+    previous = signal.getsignal(signal.SIGINT)
+    in_main_thread = threading.current_thread() is threading.main_thread()
+    if in_main_thread:
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
         with dask.config.set(LOCAL_WORKER_CONFIG):
-            cluster = distributed.LocalCluster(
+            return distributed.LocalCluster(
                 n_workers=spec.local_workers, threads_per_worker=spec.threads_per_worker, processes=True,
                 dashboard_address=":0", silence_logs=logging.CRITICAL,
                 preload=["codebench.engine.dask_worker_setup"],
             )
-        client = distributed.Client(cluster)
-        return DaskExecutor(client, [client, cluster])
-    cluster = batch_system_cluster(spec)
-    if spec.jobs is not None:
-        cluster.scale(jobs=spec.jobs)
-    else:
-        cluster.adapt(minimum_jobs=spec.adapt_minimum, maximum_jobs=spec.adapt_maximum)
-    client = distributed.Client(cluster, timeout=spec.connect_timeout)
-    return DaskExecutor(client, [client, cluster])
+    finally:
+        if in_main_thread:
+            signal.signal(signal.SIGINT, previous)
 
 
-def batch_system_cluster(spec: ClusterSpec) -> Any:
+def _batch_system_started(spec: ClusterSpec) -> Any:
+    cluster = batch_system_cluster(spec, require_submit_command=True)
+    try:
+        if spec.jobs is not None:
+            cluster.scale(jobs=spec.jobs)
+        else:
+            cluster.adapt(minimum_jobs=spec.adapt_minimum, maximum_jobs=spec.adapt_maximum)
+    except BaseException:
+        cluster.close()
+        raise
+    return cluster
+
+
+def batch_system_cluster(spec: ClusterSpec, require_submit_command: bool = False) -> Any:
     """The dask-jobqueue cluster of ``spec``, with no job submitted yet (see its ``job_script()``)."""
     require_packages(spec)
-    import dask_jobqueue
+    dask_jobqueue = import_jobqueue()
     assert spec.batch_system is not None
     class_name = BATCH_SYSTEMS[spec.batch_system]
     cluster_class = getattr(dask_jobqueue, class_name)
-    allowed = jobqueue_options(cluster_class)
+    command = str(getattr(cluster_class.job_cls, "submit_command", "") or "").split()
+    if require_submit_command and command and shutil.which(command[0]) is None:
+        raise ConfigError(f"cluster.batch_system is {spec.batch_system!r} but its submit command "
+                          f"'{command[0]}' is not on this machine's PATH; run the coordinator where jobs can be "
+                          "submitted (a login node), or use cluster.scheduler.")
+    allowed = accepted_options(class_name)
     for key, value in spec.options.items():
         # Checked here: a cluster whose construction fails half way cannot be closed cleanly.
         if key not in allowed:
@@ -270,22 +312,9 @@ def batch_system_cluster(spec: ClusterSpec) -> Any:
     try:
         cluster = cluster_class(**spec.options)
     except (TypeError, ValueError) as exc:
-        raise ConfigError(f"cluster.options are not accepted by dask_jobqueue.{class_name}: {exc}.") from None
+        reason = " ".join(str(exc).split())
+        raise ConfigError(f"cluster.options are not accepted by dask_jobqueue.{class_name}: {reason}.") from None
     return cluster
-
-
-#: Constructor arguments that codebench sets itself or that make no sense in a sweep file.
-_NOT_OPTIONS = {"self", "job_cls", "loop", "asynchronous", "job_kwargs", "scheduler", "name", "base_class_kwargs",
-                "args", "kwargs", "config_name"}
-
-
-def jobqueue_options(cluster_class: Any) -> set[str]:
-    """Names a dask-jobqueue cluster class accepts: its own and those of its job class."""
-    names: set[str] = set()
-    for cls in (*cluster_class.__mro__, *cluster_class.job_cls.__mro__):
-        if "__init__" in vars(cls):
-            names.update(inspect.signature(cls.__init__).parameters)
-    return names - _NOT_OPTIONS
 
 
 def _connect(address: str, timeout: float) -> Any:

@@ -99,6 +99,7 @@ class LocalExecutor(Executor):
             context.set_forkserver_preload(["codebench.engine.worker"])
         self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_ignore_interrupts)
         self._futures: set[Future[BatchResult]] = set()
+        self._closed = False
         # Start every worker now: an interrupt while the pool is still spawning
         # processes would otherwise leave multiprocessing half set up.
         for future in [self._pool.submit(_ready) for _ in range(self.workers)]:
@@ -125,6 +126,9 @@ class LocalExecutor(Executor):
         return f"{self.workers} local worker processes"
 
     def close(self, wait: bool = True) -> None:
+        if self._closed:
+            return
+        self._closed = True
         if not wait:
             # Interrupted: do not sit out the running batches; their results would be dropped anyway.
             for process in list(getattr(self._pool, "_processes", {}).values()):
