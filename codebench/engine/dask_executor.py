@@ -261,7 +261,8 @@ def _local_cluster(spec: ClusterSpec) -> Any:
     # resubmitted batches are reported on the progress line instead. SIGINT is ignored
     # while the workers start: they inherit that (an ignored signal survives exec), so a
     # Ctrl-C during start-up cannot kill them half-imported; once up, the preloaded
-    # hook keeps ignoring it, also in workers restarted later.
+    # hook keeps ignoring it, also in workers restarted later. A Ctrl-C in that window is
+    # lost (blocking it instead does not carry over to the spawned workers).
     previous = signal.getsignal(signal.SIGINT)
     in_main_thread = threading.current_thread() is threading.main_thread()
     if in_main_thread:
