@@ -164,13 +164,9 @@ def _check_options(batch_system: str, options: dict[str, Any]) -> None:
             raise ConfigError(not_allowed(f"cluster.options.{key}", options[key], "a string"))
     if importlib.util.find_spec("dask_jobqueue") is None:
         return  # names are checked when the cluster starts (where the package must be present)
-    from codebench.engine.jobqueue_options import accepted_options
+    from codebench.engine.jobqueue_options import check_option_names
 
-    allowed = accepted_options(BATCH_SYSTEMS[batch_system])
-    for key, value in options.items():
-        if key not in allowed:
-            raise ConfigError(not_allowed(f"cluster.options.{key}", value, f"absent: dask_jobqueue."
-                                          f"{BATCH_SYSTEMS[batch_system]} takes " + ", ".join(sorted(allowed))))
+    check_option_names(BATCH_SYSTEMS[batch_system], options)
 
 
 def _only_with(table: dict[str, Any], way: str, key: str, ways: tuple[str, ...]) -> None:

@@ -29,7 +29,7 @@ from concurrent.futures import CancelledError
 from typing import Any, Callable
 
 from codebench.engine.cluster import BATCH_SYSTEMS, ClusterSpec, require_packages
-from codebench.engine.jobqueue_options import accepted_options, import_jobqueue
+from codebench.engine.jobqueue_options import check_option_names, import_jobqueue
 from codebench.engine.executors import Executor
 from codebench.engine.worker import (
     BatchResult,
@@ -39,7 +39,7 @@ from codebench.engine.worker import (
     environment_difference,
     run_batch_checked,
 )
-from codebench.errors import ClusterError, CodebenchError, ConfigError, not_allowed
+from codebench.errors import ClusterError, CodebenchError, ConfigError
 
 # Imported only when a sweep runs on a cluster (after cluster.require_packages).
 import dask
@@ -304,12 +304,9 @@ def batch_system_cluster(spec: ClusterSpec, require_submit_command: bool = False
         raise ConfigError(f"cluster.batch_system is {spec.batch_system!r} but its submit command "
                           f"'{command[0]}' is not on this machine's PATH; run the coordinator where jobs can be "
                           "submitted (a login node), or use cluster.scheduler.")
-    allowed = accepted_options(class_name)
-    for key, value in spec.options.items():
-        # Checked here: a cluster whose construction fails half way cannot be closed cleanly.
-        if key not in allowed:
-            raise ConfigError(not_allowed(f"cluster.options.{key}", value,
-                                          f"absent: dask_jobqueue.{class_name} takes " + ", ".join(sorted(allowed))))
+    # Again here, for a ClusterSpec not read from a file: a cluster whose construction
+    # fails half way cannot be closed cleanly.
+    check_option_names(class_name, spec.options)
     try:
         cluster = cluster_class(**spec.options)
     except (TypeError, ValueError) as exc:

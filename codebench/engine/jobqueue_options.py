@@ -7,6 +7,9 @@ import signal
 import threading
 from functools import lru_cache
 from types import ModuleType
+from typing import Any
+
+from codebench.errors import ConfigError, not_allowed
 
 #: Constructor arguments codebench sets itself, that clash with ``jobs``/``adapt_*``, or that
 #: dask-jobqueue keeps only as deprecated spellings of newer ones.
@@ -38,3 +41,12 @@ def accepted_options(class_name: str) -> frozenset[str]:
         if "__init__" in vars(cls):
             names.update(inspect.signature(cls.__init__).parameters)
     return frozenset(names - _NOT_OPTIONS)
+
+
+def check_option_names(class_name: str, options: dict[str, Any]) -> None:
+    """Refuse ``[cluster.options]`` that ``dask_jobqueue.<class_name>`` would not take, naming the first."""
+    allowed = accepted_options(class_name)
+    for key, value in options.items():
+        if key not in allowed:
+            raise ConfigError(not_allowed(f"cluster.options.{key}", value,
+                                          f"absent: dask_jobqueue.{class_name} takes " + ", ".join(sorted(allowed))))
