@@ -158,28 +158,32 @@ def _improvement(text: str) -> tuple[str, float]:
         raise argparse.ArgumentTypeError(str(exc)) from None
 
 
-def _seconds(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        value = float("nan")
-    if not value > 0 or value == float("inf"):
-        raise argparse.ArgumentTypeError(not_allowed("--budget-seconds", text, "a positive number of seconds"))
-    return value
+def _positive_number(flag: str, what: str) -> Callable[[str], float]:
+    """An argparse type: a positive finite number, else the one-line message for ``flag``."""
+    def parse(text: str) -> float:
+        try:
+            value = float(text)
+        except ValueError:
+            value = float("nan")
+        if not value > 0 or value == float("inf"):
+            raise argparse.ArgumentTypeError(not_allowed(flag, text, what))
+        return value
+
+    return parse
 
 
 def cmd_forecast(args: argparse.Namespace) -> int:
     import json
 
     from codebench.forecast import DEFAULT_TARGETS, forecast
-    from codebench.forecast_render import forecast_table
+    from codebench.forecast.render import forecast_table
 
     targets = [t for group in args.target for t in group] if args.target else list(DEFAULT_TARGETS)
     improve: dict[str, float] = {}
     for name, factor in args.improve or []:
         improve[name] = improve.get(name, 1.0) * factor
     result = forecast(args.device, code=args.code, distances=args.distances, basis=args.basis,
-                      decoder=args.decoder, targets=targets, budget_seconds=args.budget_seconds,
+                      decoder=args.decoder, targets=targets, budget_seconds=args.budget_seconds, work=args.work,
                       workers=args.workers, seed=args.seed, out=args.out, improve=improve, method=args.method,
                       progress=not args.quiet)
     if args.format == "json":
@@ -249,17 +253,27 @@ def build_parser() -> argparse.ArgumentParser:
     fc.add_argument("device", help="device calibration file (TOML or JSON)")
     fc.add_argument("--code", default="rotated_surface", help="code family (default: rotated_surface)")
     fc.add_argument("--distances", type=_distances, default=[3, 5, 7], help="comma-separated (default: 3,5,7)")
-    fc.add_argument("--basis", default="Z", help="memory basis (default: Z)")
-    fc.add_argument("--decoder", default="mwpm", help="decoder (default: mwpm)")
+    fc.add_argument("--basis", default="Z",
+                    help="memory basis: Z, X, Z,X or both (both: also the logical qubit's error, either basis "
+                         "failing; default: Z)")
+    fc.add_argument("--decoder", help="decoder (default: the code family's, flag_matching for heavy_hex, "
+                                      "mwpm otherwise)")
     fc.add_argument("--target", type=_rates, action="append",
                     help="target per-round rate; repeatable or comma-separated (default: 1e-6,1e-9,1e-12)")
-    fc.add_argument("--budget-seconds", type=_seconds, default=60.0,
-                    help="wall-clock budget of the whole forecast (default: 60)")
+    fc.add_argument("--budget-seconds", default=60.0,
+                    type=_positive_number("--budget-seconds", "a positive number of seconds"),
+                    help="budget, turned into counted work at a fixed rate; sampling stops at 3x this "
+                         "whatever the plan (default: 60)")
+    fc.add_argument("--work", type=_positive_number("--work", "a positive amount of counted work "
+                                                    "(shots x detectors, e.g. 5e9)"),
+                    help="budget as counted work (shots x detectors) instead: no time limit, the same plan "
+                         "on any machine")
     fc.add_argument("--improve", type=_improvement, action="append", metavar="PARAM=FACTOR",
                     help="what-if: scale t1_us/t2_us (factor on 1/T), gate_1q_error, gate_2q_error, "
                          "readout_error or reset_error; repeatable")
-    fc.add_argument("--method", choices=["auto", "direct", "extrapolated"], default="auto",
-                    help="how each distance is estimated (default: auto)")
+    fc.add_argument("--method", choices=["auto", "direct", "extrapolated", "stratified"], default="auto",
+                    help="how each distance is estimated (default: auto: direct where it reaches "
+                         "100 failures in the budget, else stratified by fault count)")
     fc.add_argument("--format", choices=["table", "json"], default="table")
     fc.add_argument("--out", help="folder for forecast.json/.csv/.png/.svg and the sample store")
     fc.add_argument("--workers", type=_positive_int("--workers"), help="local worker processes (default: all cores)")

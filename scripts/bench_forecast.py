@@ -29,7 +29,7 @@ import time
 from pathlib import Path
 
 from codebench.forecast import forecast
-from codebench.forecast_render import forecast_table
+from codebench.forecast.render import forecast_table
 
 ROOT = Path(__file__).resolve().parents[1]
 DEVICE = ROOT / "configs" / "devices" / "larkspur_current.toml"

@@ -467,7 +467,7 @@ def test_report_compares_decoding_with_the_device_round(tmp_path: Path) -> None:
 
 def test_forecast_reports_decoder_speed() -> None:
     from codebench.forecast import forecast
-    from codebench.forecast_render import CSV_COLUMNS, forecast_table
+    from codebench.forecast.render import CSV_COLUMNS, forecast_table
 
     result = forecast(REPO / "configs" / "devices" / "larkspur_current.toml", distances=(3, 5), budget_seconds=6,
                       workers=1)

@@ -241,6 +241,54 @@ def _log_interval(log_value: float, log_var: float) -> tuple[float, float, float
     return float(np.exp(log_value)), float(np.exp(log_value - half)), float(np.exp(log_value + half))
 
 
+@dataclass(frozen=True)
+class LambdaFit:
+    """Lambda from eps_d = C / Lambda^((d + 1) / 2), weighted least squares in ln eps.
+
+    ``log_cov`` is the 2 x 2 covariance of (ln C, ln Lambda).
+    """
+
+    lam: float
+    low: float
+    high: float
+    C: float
+    log_cov: list[list[float]]
+    chi2: float
+    dof: int
+    inflation: float
+    ln_lambda_se: float
+    distances: list[int]
+
+
+def fit_lambda(distances: npt.ArrayLike, log_eps: npt.ArrayLike, var_log: npt.ArrayLike) -> LambdaFit:
+    """The Lambda fit over distances with ln eps and var(ln eps) (at least two distinct distances).
+
+    Shared by :func:`lambda_fits` and the device forecast.
+
+    >>> fit = fit_lambda([3, 5], np.log([1e-3, 2.5e-4]), [0.01, 0.01])
+    >>> round(fit.lam, 9), fit.distances
+    (4.0, [3, 5])
+    """
+    d = np.asarray(distances, dtype=np.float64)
+    x = -(d + 1.0) / 2.0
+    fit = weighted_fit(np.column_stack([np.ones_like(x), x]), np.asarray(log_eps, dtype=np.float64),
+                       np.asarray(var_log, dtype=np.float64))
+    lam, low, high = _log_interval(float(fit.beta[1]), float(fit.cov[1, 1]))
+    return LambdaFit(lam, low, high, float(np.exp(fit.beta[0])), [[float(v) for v in row] for row in fit.cov],
+                     fit.chi2, fit.dof, float(fit.inflation), float(np.sqrt(fit.cov[1, 1])),
+                     [int(v) for v in d])
+
+
+def lambda_pair(d1: int, d2: int, log_eps1: float, log_eps2: float, var1: float, var2: float) -> tuple[float, float, float]:
+    """Lambda = (eps_d1 / eps_d2)^(2 / (d2 - d1)) with its 95% interval (lambda, low, high).
+
+    >>> [round(v, 6) for v in lambda_pair(3, 5, float(np.log(1e-3)), float(np.log(2.5e-4)), 0.0, 0.0)]
+    [4.0, 4.0, 4.0]
+    """
+    scale = 2.0 / (d2 - d1)
+    return _log_interval(scale * (log_eps1 - log_eps2), scale**2 * (var1 + var2))
+
+
 def _all_finite(record: dict[str, Any], keys: tuple[str, ...]) -> bool:
     return all(np.isfinite(record[key]) for key in keys)
 
@@ -289,16 +337,13 @@ def lambda_fits(family: Family, threshold: float | None) -> tuple[list[dict[str,
             missing.append(f"{float(p):.6g}")
             continue
         y = np.log(at_p.eps)
-        x = -(at_p.distance.astype(np.float64) + 1.0) / 2.0
-        fit = weighted_fit(np.column_stack([np.ones_like(x), x]), y, at_p.var_log)
-        lam, low, high = _log_interval(float(fit.beta[1]), float(fit.cov[1, 1]))
+        fit = fit_lambda(at_p.distance, y, at_p.var_log)
         record: dict[str, Any] = {
-            **family.identity(), "p": float(p), "lambda": lam, "low": low, "high": high,
-            "distances": [int(d) for d in at_p.distance], "C": float(np.exp(fit.beta[0])),
+            **family.identity(), "p": float(p), "lambda": fit.lam, "low": fit.low, "high": fit.high,
+            "distances": fit.distances, "C": fit.C,
             "method": "weighted_log_fit", "quantity": "per_round_rate",
-            "chi2": fit.chi2, "dof": fit.dof, "inflation": float(fit.inflation),
-            "ln_lambda_se": float(np.sqrt(fit.cov[1, 1])),
-            "log_cov": [[float(v) for v in row] for row in fit.cov],
+            "chi2": fit.chi2, "dof": fit.dof, "inflation": fit.inflation,
+            "ln_lambda_se": fit.ln_lambda_se, "log_cov": fit.log_cov,
         }
         if _all_finite(record, ("lambda", "low", "high", "C", "chi2")):
             fits.append(record)
@@ -306,10 +351,8 @@ def lambda_fits(family: Family, threshold: float | None) -> tuple[list[dict[str,
             notes.append(prefix + f"Lambda fit at p={float(p):.6g} is not finite; left out.")
         for i in range(len(at_p) - 1):
             d1, d2 = int(at_p.distance[i]), int(at_p.distance[i + 1])
-            scale = 2.0 / (d2 - d1)
-            log_lam = scale * float(y[i] - y[i + 1])
-            log_var = scale**2 * float(at_p.var_log[i] + at_p.var_log[i + 1])
-            lam, low, high = _log_interval(log_lam, log_var)
+            lam, low, high = lambda_pair(d1, d2, float(y[i]), float(y[i + 1]), float(at_p.var_log[i]),
+                                         float(at_p.var_log[i + 1]))
             pair: dict[str, Any] = {
                 **family.identity(), "p": float(p), "distances": [d1, d2], "lambda": lam,
                 "low": low, "high": high, "method": "pair_ratio", "quantity": "per_round_rate",

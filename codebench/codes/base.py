@@ -20,6 +20,8 @@ class CodeFamily(ABC):
 
     name: ClassVar[str]
     bases: ClassVar[tuple[Basis, ...]] = ("Z", "X")
+    #: The decoder this family needs by default (a forecast's choice when none is named).
+    default_decoder: ClassVar[str] = "mwpm"
 
     @abstractmethod
     def distance_problem(self, distance: int) -> str | None:

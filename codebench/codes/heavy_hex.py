@@ -236,6 +236,9 @@ def _gauge_check(gauge: XGauge) -> Check:
 
 class HeavyHex(CodeFamily):
     name = "heavy_hex"
+    # Flag qubits are detectors that plain matching cannot use; flag-conditioned matching reaches
+    # distance d where mwpm does not.
+    default_decoder = "flag_matching"
 
     def distance_problem(self, distance: int) -> str | None:
         return None if distance >= 3 and distance % 2 == 1 else "an odd integer >= 3"

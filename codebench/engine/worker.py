@@ -24,6 +24,7 @@ import stim
 
 from codebench.decoders import get_decoder
 from codebench.decoders.base import Decoder
+from codebench.engine.fault_sampling import FaultTable, fault_shots, sample_fault_sets
 from codebench.engine.points import Point
 
 #: Compiled points a worker keeps (least recently used evicted first).
@@ -39,6 +40,9 @@ class BatchTask:
     batch_index: int
     shots: int
     seed: int
+    #: ``None``: shots sampled from the circuit. An integer w: every shot has exactly w faults of the
+    #: point's detector error model (:mod:`codebench.engine.fault_sampling`), for rare-event estimates.
+    faults: int | None = None
 
 
 @dataclass(frozen=True)
@@ -59,6 +63,15 @@ class CompiledPoint:
     decoder: Decoder
     num_detectors: int
     num_observables: int
+    dem: stim.DetectorErrorModel
+    _faults: FaultTable | None = None
+
+    @property
+    def faults(self) -> FaultTable:
+        """The detector error model's mechanisms as bit-packed rows (built on first use)."""
+        if self._faults is None:
+            self._faults = FaultTable.from_dem(self.dem)
+        return self._faults
 
 
 class _ThreadCache(threading.local):
@@ -89,7 +102,7 @@ def compile_point(params: dict[str, Any]) -> CompiledPoint:
     decoder = decoder_cls(**dict(point.decoder_options))
     dem = circuit.detector_error_model(decompose_errors=decoder_cls.wants_decomposed)
     decoder.compile(dem)
-    return CompiledPoint(circuit, decoder, circuit.num_detectors, circuit.num_observables)
+    return CompiledPoint(circuit, decoder, circuit.num_detectors, circuit.num_observables, dem)
 
 
 def compiled(point_key: str, params: dict[str, Any]) -> CompiledPoint:
@@ -135,6 +148,8 @@ def run_batch(task: BatchTask) -> BatchResult:
     if not _warmed:
         _warm_up_sampler()
     point = compiled(task.point_key, task.params)
+    if task.faults is not None:
+        return _run_fault_batch(task, point, task.faults)
     start = time.perf_counter()
     sampler = point.circuit.compile_detector_sampler(seed=task.seed)
     failures = 0
@@ -156,6 +171,23 @@ def run_batch(task: BatchTask) -> BatchResult:
         seconds=time.perf_counter() - start,
         decode_seconds=decode_seconds,
     )
+
+
+def _run_fault_batch(task: BatchTask, point: CompiledPoint, faults: int) -> BatchResult:
+    """A batch of shots with exactly ``faults`` faults each, decoded like any other batch."""
+    start = time.perf_counter()
+    table = point.faults
+    rng = np.random.default_rng(task.seed)
+    failures = 0
+    decode_seconds = 0.0
+    for chunk in _chunks(task.shots, chunk_shots(point.num_detectors, point.circuit.num_measurements)):
+        detectors, observables = fault_shots(table, sample_fault_sets(table.odds, faults, chunk, rng))
+        decode_start = time.perf_counter()
+        predicted = point.decoder.decode_batch(detectors, bit_packed=True)
+        decode_seconds += time.perf_counter() - decode_start
+        failures += count_failures(predicted, observables)
+    return BatchResult(point_key=task.point_key, batch_index=task.batch_index, shots=task.shots,
+                       failures=failures, seconds=time.perf_counter() - start, decode_seconds=decode_seconds)
 
 
 #: Packages whose versions decide the counts of a batch.

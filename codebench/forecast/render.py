@@ -5,12 +5,14 @@ Files written by :func:`write_outputs` into the ``--out`` folder:
 - ``forecast.json``: the forecast dict (``allow_nan=False``, plain types);
 - ``forecast.csv``: one row per distance;
 - ``forecast.png`` (150 dpi) and ``forecast.svg``: left, the per-round
-  logical error against the distance with 95% intervals (filled markers:
-  direct, open squares: extrapolated), the Lambda fit extended to the
-  distances the targets need, the targets, and the break-even lines of the
-  best and median idle qubit; right, the per-round error against the noise
-  scale with each extrapolated distance's power law continued down to the
-  device's own noise (s = 1).
+  logical error against the distance with 95% intervals (circles: direct,
+  diamonds: stratified, open diamonds: stratified and extrapolated in w, open
+  squares: raised-noise power law), the Lambda fit extended to the distances
+  the targets need, the targets, and the break-even lines of the best and
+  median idle qubit; right (only when a distance was not sampled directly),
+  the failure spectrum f(w) of the stratified distances with the w that
+  dominate P_L shaded, or else the raised-noise points with each power law
+  continued down to the device's own noise (s = 1).
 
 Figures are :class:`matplotlib.figure.Figure` objects on the Agg canvas
 (no pyplot, no global state).
@@ -35,7 +37,8 @@ from codebench.export import speed_verdict
 __all__ = ["CSV_COLUMNS", "forecast_table", "forecast_figure", "write_outputs"]
 
 CSV_COLUMNS = [
-    "distance", "qubits", "rounds", "per_round_rate", "low", "high", "method", "method_kind",
+    "distance", "qubits", "rounds", "per_round_rate", "low", "high", "method", "method_kind", "extrapolated_in_w",
+    "w_sampled", "mean_faults", "flags",
     "per_second_rate", "per_second_low", "per_second_high", "round_duration_us", "shots", "failures",
     "scales", "exponent", "exponent_se", "break_even_verdict", "beats_best_idle", "beats_median_idle",
     "decode_us_per_round", "keeps_up",
@@ -73,7 +76,8 @@ def forecast_table(result: dict[str, Any]) -> str:
     what_if = (" with " + ", ".join(f"{k} x{v:g}" for k, v in improve.items())) if improve else ""
     lines = [
         f"Forecast for {result['device']}{what_if}",
-        f"{result['code']} memory in the {result['basis']} basis, rounds = d, decoder {result['decoder']}",
+        f"{result['code']} memory in the {result['basis']} basis, rounds = d, decoder {result['decoder']}"
+        + (" (per-round rates: the logical qubit fails when either basis fails)" if len(result["bases"]) > 1 else ""),
         "A model-based projection from the device file: see the cautions at the end.",
         "",
         "Per distance (per-round logical error with 95% interval)",
@@ -86,8 +90,13 @@ def forecast_table(result: dict[str, Any]) -> str:
         method = r["method"]
         if r.get("method_kind") == "direct":
             method += f" ({r['failures']:,} failures in {r['shots']:,} shots)"
+        elif r.get("method_kind") == "stratified" and r.get("w_sampled"):
+            method += (f" ({r['failures']:,} failures in {r['shots']:,} shots with w = "
+                       f"{r['w_sampled'][0]}..{r['w_sampled'][1]} faults; mean faults {r['mean_faults']:.3g})")
         elif r.get("exponent") is not None:
             method += f", exponent {r['exponent']:.2f} +- {1.96 * r['exponent_se']:.2f}"
+        if r.get("flags"):
+            method += " [flagged: see notes]"
         rows.append([str(r["distance"]), f"{r['qubits']:,}", rate, interval, per_s, method])
     lines += _columns(rows, [True, True, True, False, True, False])
     lines.append("")
@@ -106,7 +115,9 @@ def forecast_table(result: dict[str, Any]) -> str:
     rows = [["target", "d", "qubits", "d range (95%)", "qubits range", "note"]]
     for t in result["targets"]:
         if t["distance"] is None:
-            rows.append([f"{t['target']:.0e}", "-", "-", "-", "-", "not reached by growing d"])
+            why = "not projected: constant Lambda not supported" if t.get("not_projected") else \
+                "not reached by growing d"
+            rows.append([f"{t['target']:.0e}", "-", "-", "-", "-", why])
             continue
         d_range = f"{t['distance_low'] or '-'}-{t['distance_high'] or 'unbounded'}"
         q_low = f"{t['qubits_low']:,}" if t["qubits_low"] is not None else "-"
@@ -144,8 +155,9 @@ def forecast_table(result: dict[str, Any]) -> str:
         lines.append(f"  d = {row['distance']}: {_e(row['per_round_rate'])} per round: {row['verdict']}{sure}")
     budget = result["budget"]
     lines.append("")
-    lines.append(f"Budget: {budget['seconds']:g} s asked; sampling took {budget['wall_seconds']:.1f} s wall and "
-                 f"{budget['worker_seconds']:.1f} worker-seconds on {budget['workers']} worker(s)")
+    lines.append(f"Budget: {budget['work']:.3g} detector-shots planned, {budget['work_spent']:.3g} spent, "
+                 f"in {budget['wall_seconds']:.1f} s wall"
+                 + ("; the hard time limit cut short " + ", ".join(budget["cut_short"]) if budget["cut_short"] else ""))
     if result["notes"]:
         lines.append("")
         lines.append("Notes:")
@@ -163,6 +175,8 @@ def _csv_rows(result: dict[str, Any]) -> list[dict[str, Any]]:
         be = verdicts.get(r["distance"], {})
         row = {key: r.get(key) for key in CSV_COLUMNS}
         row["scales"] = " ".join(f"{s:g}" for s in r.get("scales", []))
+        row["w_sampled"] = "-".join(str(w) for w in r.get("w_sampled") or [])
+        row["flags"] = "; ".join(r.get("flags") or [])
         row["break_even_verdict"] = be.get("verdict")
         row["beats_best_idle"] = be.get("beats_best")
         row["beats_median_idle"] = be.get("beats_median")
@@ -179,10 +193,14 @@ def _atomic_write(path: Path, text: str) -> None:
 
 def forecast_figure(result: dict[str, Any]) -> Figure:
     """The two-panel forecast figure (see the module docstring)."""
-    fig = Figure(figsize=(11.0, 4.6), layout="constrained")
-    FigureCanvasAgg(fig)
-    left, right = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.25, 1.0]})
     rows = result["distances"]
+    side = [r for r in rows if r.get("method_kind") in ("extrapolated", "stratified")]
+    fig = Figure(figsize=(11.0 if side else 6.4, 4.6), layout="constrained")
+    FigureCanvasAgg(fig)
+    if side:
+        left, right = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.25, 1.0]})
+    else:
+        left, right = fig.subplots(1, 1), None
     fit = result["lambda_fit"]
     be = result["break_even"]
     d_fit_max = max(r["distance"] for r in rows)
@@ -190,9 +208,14 @@ def forecast_figure(result: dict[str, Any]) -> Figure:
     d_max = max([d_fit_max] + reachable)
     d_min = min(r["distance"] for r in rows)
 
-    for kind, marker, face, label in (("direct", "o", None, "direct sampling"),
-                                      ("extrapolated", "s", "white", "extrapolated from raised noise")):
-        sel = [r for r in rows if r.get("method_kind") == kind and r["per_round_rate"] is not None]
+    styles = (("direct", False, "o", None, "direct sampling"),
+              ("combined", False, "o", None, "either basis fails"),
+              ("stratified", False, "D", None, "stratified by fault count"),
+              ("stratified", True, "D", "white", "stratified, extrapolated in w"),
+              ("extrapolated", False, "s", "white", "extrapolated from raised noise"))
+    for kind, in_w, marker, face, label in styles:
+        sel = [r for r in rows if r.get("method_kind") == kind and r["per_round_rate"] is not None
+               and bool(r.get("extrapolated_in_w")) == in_w]
         if not sel:
             continue
         x = [r["distance"] for r in sel]
@@ -238,38 +261,60 @@ def forecast_figure(result: dict[str, Any]) -> Figure:
     left.grid(True, which="major", alpha=0.3)
     left.legend(fontsize=7, loc="upper right")
 
-    for i, r in enumerate(rows):
-        colour = _COLOURS[i % len(_COLOURS)]
-        points = r.get("points") or []
-        if r.get("method_kind") == "direct":
-            if r["per_round_rate"] is not None:
-                right.errorbar([1.0], [r["per_round_rate"]],
-                               yerr=[[r["per_round_rate"] - r["low"]], [r["high"] - r["per_round_rate"]]],
-                               fmt="o", color=colour, capsize=3, label=f"d = {r['distance']}, direct")
-            continue
-        good = [p for p in points if p["failures"] > 0 and p["per_round_rate"] is not None]
-        if good:
-            right.errorbar([p["scale"] for p in good], [p["per_round_rate"] for p in good],
-                           yerr=[[p["per_round_rate"] - p["low"] for p in good],
-                                 [p["high"] - p["per_round_rate"] for p in good]],
-                           fmt=".", color=colour, capsize=2, label=f"d = {r['distance']}, sampled at raised noise")
-        if r["per_round_rate"] is not None and r.get("exponent") is not None:
-            top = max(p["scale"] for p in points)
-            xs = [math.exp(math.log(top) * k / 40) for k in range(41)]
-            right.plot(xs, [r["per_round_rate"] * x ** r["exponent"] for x in xs], "--", color=colour, lw=1)
-            right.errorbar([1.0], [r["per_round_rate"]],
-                           yerr=[[r["per_round_rate"] - r["low"]], [r["high"] - r["per_round_rate"]]],
-                           fmt="s", mfc="white", color=colour, capsize=3,
-                           label=f"d = {r['distance']}, power law at s = 1 (exponent {r['exponent']:.2f})")
-    right.set_xscale("log")
-    right.set_yscale("log")
-    right.set_xlabel("noise scale s (1 = the device)")
-    right.set_ylabel("logical error per round")
-    right.set_title("per-round error against the noise scale s", fontsize=9)
-    right.grid(True, which="major", alpha=0.3)
-    if right.get_legend_handles_labels()[0]:
-        right.legend(fontsize=7, loc="upper left")
+    if right is not None:
+        _side_panel(right, side)
     return fig
+
+
+def _side_panel(ax: Any, rows: Sequence[dict[str, Any]]) -> None:
+    """The failure spectrum f(w) of stratified distances, or the raised-noise points of extrapolated ones."""
+    from codebench.stats import wilson_interval
+
+    stratified = [r for r in rows if r.get("method_kind") == "stratified"]
+    if stratified:
+        for i, r in enumerate(stratified):
+            colour = _COLOURS[i % len(_COLOURS)]
+            pts = [p for p in r.get("spectrum") or [] if p["failures"] > 0]
+            if not pts:
+                continue
+            f = [p["failures"] / p["shots"] for p in pts]
+            bands = [wilson_interval(p["failures"], p["shots"]) for p in pts]
+            ax.errorbar([p["w"] for p in pts], f, yerr=[[v - b[0] for v, b in zip(f, bands)],
+                                                         [b[1] - v for v, b in zip(f, bands)]],
+                        fmt="D", ms=4, color=colour, capsize=2, label=f"d = {r['distance']}")
+            if r.get("w_dominant"):
+                a, b = r["w_dominant"]
+                ax.axvspan(a - 0.5, b + 0.5, color=colour, alpha=0.08)
+        ax.set_xlabel("faults per shot w (shaded: the w that dominate P_L)")
+        ax.set_ylabel("failure probability given w faults, f(w)")
+        ax.set_yscale("log")
+        ax.set_title("failure spectrum (95% Wilson intervals)", fontsize=9)
+    else:
+        for i, r in enumerate(rows):
+            colour = _COLOURS[i % len(_COLOURS)]
+            points = r.get("points") or []
+            good = [p for p in points if p["failures"] > 0 and p["per_round_rate"] is not None]
+            if good:
+                ax.errorbar([p["scale"] for p in good], [p["per_round_rate"] for p in good],
+                            yerr=[[p["per_round_rate"] - p["low"] for p in good],
+                                  [p["high"] - p["per_round_rate"] for p in good]],
+                            fmt=".", color=colour, capsize=2, label=f"d = {r['distance']}, raised noise")
+            if r["per_round_rate"] is not None and r.get("exponent") is not None:
+                top = max(p["scale"] for p in points)
+                xs = [math.exp(math.log(top) * k / 40) for k in range(41)]
+                ax.plot(xs, [r["per_round_rate"] * x ** r["exponent"] for x in xs], "--", color=colour, lw=1)
+                ax.errorbar([1.0], [r["per_round_rate"]],
+                            yerr=[[r["per_round_rate"] - r["low"]], [r["high"] - r["per_round_rate"]]],
+                            fmt="s", mfc="white", color=colour, capsize=3,
+                            label=f"d = {r['distance']}, at s = 1 (exponent {r['exponent']:.2f})")
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        ax.set_xlabel("noise scale s (1 = the device)")
+        ax.set_ylabel("logical error per round")
+        ax.set_title("per-round error against the noise scale s", fontsize=9)
+    ax.grid(True, which="major", alpha=0.3)
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(fontsize=7, loc="lower right")
 
 
 def write_outputs(result: dict[str, Any], folder: str | Path) -> list[Path]:

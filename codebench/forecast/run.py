@@ -1,0 +1,389 @@
+"""The forecast: per basis and distance, choose a method, sample, estimate; then Lambda, targets, break-even.
+
+Method per distance (``auto``), decided from counts only:
+
+1. A pilot at the device's own noise (s = 1): ``PILOT_SHOTS`` shots, stopping
+   at ``PILOT_FAILURES`` failures.
+2. **direct** when ``DIRECT_MIN_FAILURES`` failures at the pilot's rate (its
+   Wilson lower bound, so a lucky pilot does not oversell direct sampling) fit
+   in the distance's share of the counted work; the point is then sampled to
+   ``DIRECT_FAILURES`` failures or the share.
+3. **stratified** otherwise (:mod:`codebench.forecast.strata`).
+
+``--method direct|stratified|extrapolated`` forces one method; the raised-noise
+power law (``extrapolated``) is never chosen by ``auto``: in the coverage
+check its intervals were the least reliable near threshold (see the README).
+
+The work budget (:mod:`codebench.forecast.plan`) is split equally over the
+remaining (basis, distance) pairs, each getting what earlier ones left.
+
+Several bases (``--basis both``): each basis is forecast on its own and the
+logical qubit fails in a round when either basis fails: eps = 1 - (1 - eps_Z)(1 - eps_X)
+(independent bases, common practice); its interval combines the ends of the
+two intervals (conservative) and its var(ln eps) comes from the delta method.
+
+Round duration: :meth:`codebench.noise.device.DeviceNoise.round_duration_ns`
+of the memory circuit. The logical error per second is eps / round duration.
+Decoder speed: ``decode_us_per_round`` from the pilot at s = 1 on one worker.
+Break-even: :func:`codebench.forecast.breakeven.break_even`.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import sys
+import tempfile
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Callable, Mapping, Sequence
+
+import numpy as np
+
+from codebench.codes import CODE_FAMILIES
+from codebench.codes.layout import Basis
+from codebench.decoders import get_decoder
+from codebench.engine.executors import Executor, make_executor
+from codebench.engine.fault_sampling import FaultTable
+from codebench.errors import ConfigError, not_allowed
+from codebench.export import decode_us_per_round
+from codebench.forecast import strata as strata_plan
+from codebench.forecast.breakeven import break_even
+from codebench.forecast.estimators import (
+    Estimate,
+    constant_lambda_problem,
+    direct_estimate,
+    lambda_summary,
+    stratified_row,
+    targets,
+)
+from codebench.forecast.extrapolation import sample_raised, scale_cap
+from codebench.forecast.plan import WorkBudget
+from codebench.forecast.rare_events import stratified_estimate, upper_bound_without_failures
+from codebench.forecast.request import DEFAULT_DISTANCES, DEFAULT_SEED, DEFAULT_TARGETS, ForecastRequest, parse_bases
+from codebench.forecast.sampling import Sampler, SharedPool
+from codebench.forecast.whatif import improve_device
+from codebench.noise.calibration import Device, load_device
+from codebench.noise.device import DeviceNoise
+from codebench.stats import wilson_interval
+
+__all__ = ["CAUTIONS", "forecast", "run_forecast"]
+
+CAUTIONS = (
+    "A model-based projection: it uses only the numbers in the device file and the circuit-level "
+    "noise model derived from them.",
+    "Not modelled: leakage, crosstalk, correlated and burst errors, non-Markovian noise, and drift of "
+    "the calibration over time.",
+    "Defer to measured logical-qubit experiments on the device wherever they exist.",
+)
+
+PILOT_SHOTS = 7168               # 1024 + 2048 + 4096: a prefix of the batch schedule, reused later
+PILOT_FAILURES = 10
+DIRECT_MIN_FAILURES = 100
+DIRECT_FAILURES = 1000
+
+
+@dataclass
+class Context:
+    """What every basis of one forecast shares."""
+
+    request: ForecastRequest
+    device: Device
+    store: Path
+    device_file: Path
+    pool: SharedPool
+    budget: WorkBudget
+    notes: list[str]
+
+
+def forecast(
+    device: Device | str | os.PathLike[str],
+    *,
+    code: str = "rotated_surface",
+    distances: Sequence[int] = DEFAULT_DISTANCES,
+    basis: str | Sequence[str] = "Z",
+    decoder: str | None = None,
+    targets: Sequence[float] = DEFAULT_TARGETS,
+    budget_seconds: float = 60.0,
+    work: float | None = None,
+    workers: int | None = None,
+    seed: int = DEFAULT_SEED,
+    out: str | os.PathLike[str] | None = None,
+    improve: Mapping[str, float] | None = None,
+    method: str | Mapping[int, str] = "auto",
+    progress: bool = False,
+    executor_factory: Callable[[int], Executor] | None = None,
+) -> dict[str, Any]:
+    """Forecast a device's logical qubit; see :class:`ForecastRequest` for the parameters.
+
+    ``basis`` is ``"Z"``, ``"X"``, ``"Z,X"`` or ``"both"``. Returns plain JSON
+    types (``json.dumps(..., allow_nan=False)`` works); keys ``device, code,
+    basis, decoder, round_duration_us, distances, lambda, lambda_low,
+    lambda_high, targets, break_even`` and more (see the README).
+    """
+    family = CODE_FAMILIES.get(code)
+    bases = parse_bases(basis, family.bases if family is not None else ("Z", "X"))
+    request = ForecastRequest(device=device, code=code, distances=tuple(distances), bases=bases, decoder=decoder,
+                              targets=tuple(targets), budget_seconds=budget_seconds, work=work, workers=workers,
+                              seed=seed, out=out, improve=dict(improve or {}), method=method, progress=progress,
+                              executor_factory=executor_factory)
+    return run_forecast(request)
+
+
+def run_forecast(request: ForecastRequest) -> dict[str, Any]:
+    """Run a checked :class:`ForecastRequest`; the result as in :func:`forecast`."""
+    request = request.checked()
+    source = "<device>"
+    if isinstance(request.device, Device):
+        base = request.device
+    else:
+        source = str(request.device)
+        base = load_device(Path(request.device))
+    device = improve_device(base, request.improve, source)
+    count = request.workers or os.cpu_count() or 1
+    tmp: tempfile.TemporaryDirectory[str] | None = None
+    out_dir: Path | None = None
+    if request.out is not None:
+        out_dir = Path(request.out)
+        if out_dir.exists() and not out_dir.is_dir():
+            raise ConfigError(not_allowed("--out", str(out_dir), "a folder (or a path that does not exist yet)"))
+        store = out_dir / "store"
+    else:
+        tmp = tempfile.TemporaryDirectory(prefix="codebench-forecast-")
+        store = Path(tmp.name)
+    try:
+        store.mkdir(parents=True, exist_ok=True)
+        device_file = (store / "device.json").resolve()
+        device_file.write_text(device.canonical_json() + "\n")
+        budget = WorkBudget.from_request(request.budget_seconds, request.work)
+        started = time.perf_counter()
+        factory = request.executor_factory or make_executor
+        pool = SharedPool(factory(count), budget)
+        context = Context(request, device, store, device_file, pool, budget, [])
+        if request.progress:
+            print(f"forecast: plan of {budget.total:.3g} detector-shots of work, about "
+                  f"{budget.estimated_seconds(count):.0f} s on {count} worker(s) at the reference rate",
+                  file=sys.stderr, flush=True)
+        try:
+            per_basis: dict[str, list[dict[str, Any]]] = {basis: _forecast_basis(context, basis, index)
+                         for index, basis in enumerate(request.bases)}
+        finally:
+            pool.shutdown()
+        wall = time.perf_counter() - started
+        result = _assemble(context, per_basis, source if not isinstance(request.device, Device) else None)
+        result["budget"]["wall_seconds"] = wall  # reported, never planned with
+        if out_dir is not None:
+            from codebench.forecast.render import write_outputs
+
+            write_outputs(result, out_dir)
+    finally:
+        if tmp is not None:
+            tmp.cleanup()
+    json.dumps(result, allow_nan=False)  # the promise of plain, finite JSON
+    return result
+
+
+# ---------------------------------------------------------------------------
+# one basis
+
+
+def _forecast_basis(context: Context, basis: Basis, index: int) -> list[dict[str, Any]]:
+    request = context.request
+    ds = list(request.distances)
+    sampler = Sampler(context.store, context.device_file, request.code, basis, request.decoder_name, request.seed,
+                      context.pool, context.budget, request.progress)
+    sampler.say(f"basis {basis}: pilot at scale 1 for d = {', '.join(map(str, ds))}")
+    sampler.run("pilot", {d: [1.0] for d in ds}, PILOT_FAILURES, PILOT_SHOTS)
+    rows = []
+    pairs_left = len(ds) * (len(request.bases) - index)
+    for i, d in enumerate(ds):
+        share = context.budget.share(pairs_left - i)
+        one = sampler.samples.get((d, 1.0))
+        detectors = one.detectors if one is not None else 0
+        if one is None or context.pool.stopped:
+            rows.append(_cut_short(d, one, context))
+            continue
+        method, reason = _choose(request.method_of(d), one, share)
+        if method == "direct":
+            shots = max(one.shots, int(share / max(1, detectors)) + one.shots)
+            sampler.say(f"d = {d}: direct sampling, up to {DIRECT_FAILURES} failures or {shots:,} shots")
+            sampler.run(f"d{d}-direct", {d: [1.0]}, DIRECT_FAILURES, shots)
+            estimate = direct_estimate(sampler.samples[(d, 1.0)])
+        elif method == "extrapolated":
+            estimate = sample_raised(sampler, d, share, scale_cap(context.device), detectors)
+        else:
+            estimate = _stratified(context, sampler, d, share)
+        row = estimate.row(d)
+        row["reason"] = reason
+        if context.budget.expired():
+            row["flags"].append("cut short by the hard time limit: fewer shots than planned, wider interval")
+            context.budget.cut_short.append(f"{basis}:d={d}")
+        _add_decode_speed(row, sampler)
+        rows.append(row)
+    return rows
+
+
+def _choose(forced: str, pilot: Any, share: float) -> tuple[str, str]:
+    """The method for one distance, and why."""
+    if forced != "auto":
+        return forced, f"{forced} forced"
+    low, _ = wilson_interval(pilot.failures, pilot.shots)
+    if pilot.failures and low > 0:
+        need = DIRECT_MIN_FAILURES / low * pilot.detectors
+        if need <= share:
+            return "direct", (f"{DIRECT_MIN_FAILURES} failures at the pilot's rate (lower bound {low:.3g}) need "
+                              f"{need:.3g} detector-shots; the share is {share:.3g}")
+        return "stratified", (f"{DIRECT_MIN_FAILURES} failures by direct sampling need {need:.3g} detector-shots; "
+                              f"the share is {share:.3g}")
+    return "stratified", f"no failures in the pilot's {pilot.shots:,} shots"
+
+
+def _stratified(context: Context, sampler: Sampler, distance: int, share: float) -> Estimate:
+    """Exactly-w sampling of the point at s = 1 and the stratified estimate."""
+    from codebench.config import parse_sweep
+
+    request = context.request
+    point = parse_sweep({"name": "stratified", "seed": request.seed, "study": [sampler.study(distance, [1.0])]},
+                        source="forecast").points[0]
+    decoder_cls = get_decoder(point.decoder)
+    circuit = point.circuit()
+    table = FaultTable.from_dem(circuit.detector_error_model(decompose_errors=decoder_cls.wants_decomposed))
+    key = point.key(request.seed)
+    run = strata_plan.StrataRun(key, point.params(), request.seed, context.pool,
+                                lambda: context.pool.stopped or context.budget.expired(), table.num_detectors)
+    pmf, tail = strata_plan.plan_and_sample(run, table.probabilities, distance, share, sampler.say)
+    context.budget.charge(run.work_done)
+    counts = run.table()
+    mean = float(table.probabilities.sum())
+    if not any(k for _, k in counts.values()):
+        return stratified_row(None, counts, distance, mean, upper_bound_without_failures(pmf, tail, counts))
+    estimate = stratified_estimate(pmf, tail, counts, distance, table.num_observables, seed=request.seed)
+    row = stratified_row(estimate, counts, distance, mean)
+    row.details["mechanisms"] = int(table.probabilities.size)
+    return row
+
+
+def _cut_short(distance: int, pilot: Any, context: Context) -> dict[str, Any]:
+    estimate = direct_estimate(pilot) if pilot is not None else Estimate("not sampled", "direct", None, None, None,
+                                                                         0, 0)
+    row = estimate.row(distance)
+    row["flags"].append("cut short by the hard time limit: pilot counts only")
+    row["reason"] = "time limit reached before this distance"
+    row["qubits"] = CODE_FAMILIES[context.request.code].qubit_count(distance)
+    return row
+
+
+def _add_decode_speed(row: dict[str, Any], sampler: Sampler) -> None:
+    at_one = sampler.samples.get((row["distance"], 1.0))
+    row["decode_us_per_round"] = (None if at_one is None or at_one.shots == 0 else
+                                  decode_us_per_round(at_one.decode_seconds, at_one.shots, at_one.rounds))
+
+
+# ---------------------------------------------------------------------------
+# the result
+
+
+def _either_basis(per_basis: dict[str, list[dict[str, Any]]]) -> list[dict[str, Any]]:
+    """The logical qubit fails in a round when either basis does (module docstring)."""
+    bases = list(per_basis)
+    out = []
+    for rows in zip(*per_basis.values()):
+        d = rows[0]["distance"]
+        rates = [r["per_round_rate"] for r in rows]
+        highs = [r["high"] for r in rows]
+        lows = [r["low"] or 0.0 for r in rows]
+        rate = None if any(v is None for v in rates) else 1 - math.prod(1 - v for v in rates)
+        high = None if any(v is None for v in highs) else 1 - math.prod(1 - v for v in highs)
+        low = 1 - math.prod(1 - v for v in lows)
+        log_var = None
+        if rate and all(r["log_rate_variance"] is not None for r in rows):
+            log_var = sum((r["per_round_rate"] ** 2) * r["log_rate_variance"] for r in rows) / rate**2
+        out.append({
+            "distance": d, "rounds": d, "per_round_rate": rate, "low": low, "high": high,
+            "method": "either basis fails: " + "; ".join(f"{b}: {r['method']}" for b, r in zip(bases, rows)),
+            "method_kind": "combined", "shots": sum(r["shots"] for r in rows),
+            "failures": sum(r["failures"] for r in rows), "flags": [f for r in rows for f in r["flags"]],
+            "log_rate": None if not rate else math.log(rate), "log_rate_variance": log_var,
+            "decode_us_per_round": max((r["decode_us_per_round"] or 0.0) for r in rows) or None,
+        })
+    return out
+
+
+def _assemble(context: Context, per_basis: dict[str, list[dict[str, Any]]], device_file: str | None) -> dict[str, Any]:
+    request = context.request
+    family = CODE_FAMILIES[request.code]
+    notes = context.notes
+    rows = per_basis[request.bases[0]] if len(per_basis) == 1 else _either_basis(per_basis)
+    model = DeviceNoise(1.0, device=context.device.canonical_json())
+    durations = {d: model.round_duration_ns(family.ideal_circuit(d, d, request.bases[0],
+                                                                 model.circuit_gate_set())) / 1000.0
+                 for d in request.distances}
+    for group in [rows, *per_basis.values()]:
+        for row in group:
+            row["qubits"] = family.qubit_count(row["distance"])
+            row["round_duration_us"] = durations[row["distance"]]
+            per_s = 1e6 / row["round_duration_us"]
+            for key, src in (("per_second_rate", "per_round_rate"), ("per_second_low", "low"),
+                             ("per_second_high", "high")):
+                row[key] = None if row[src] is None else row[src] * per_s
+            row["keeps_up"] = (None if row.get("decode_us_per_round") is None
+                               else bool(row["decode_us_per_round"] <= row["round_duration_us"]))
+    fit, pairs = lambda_summary(rows)
+    problem = constant_lambda_problem(fit)
+    if fit is not None and fit["lambda"] <= 1:
+        notes.append(f"Lambda = {fit['lambda']:.3g} <= 1: the device is not below threshold for this code and "
+                     "decoder; growing the distance does not reach the targets.")
+    if problem is not None:
+        notes.append(f"no target distances: a constant Lambda is not supported ({problem}).")
+    target_rows = targets(request.code, fit, request.targets, max(request.distances))
+    if any(t["extrapolation"] for t in target_rows):
+        notes.append(f"target distances beyond d = {max(request.distances)} extrapolate the Lambda fit; treat them "
+                     "as order-of-magnitude projections.")
+    for row in rows:
+        for flag in row["flags"]:
+            notes.append(f"d = {row['distance']}: {flag}.")
+    if context.budget.cut_short:
+        notes.append("the hard time limit cut short " + ", ".join(context.budget.cut_short)
+                     + "; their intervals reflect the fewer shots (rerun with the same --out to resume).")
+    round_us = durations[max(request.distances)]
+    result: dict[str, Any] = {
+        "method_note": "direct: counts at the device's noise; stratified: P_L = sum_w P(W = w) f(w) over the "
+                       "number of faults w; extrapolated: power law in a raised noise scale (module docs)",
+        "device": context.device.name, "device_file": device_file, "device_digest": context.device.digest(),
+        "improve": dict(request.improve), "code": request.code, "basis": ",".join(request.bases),
+        "bases": list(request.bases), "decoder": request.decoder_name, "seed": int(request.seed),
+        "round_duration_us": round_us,
+        "distances": rows,
+        "per_basis": per_basis if len(per_basis) > 1 else None,
+        "lambda": None if fit is None else fit["lambda"],
+        "lambda_low": None if fit is None else fit["lambda_low"],
+        "lambda_high": None if fit is None else fit["lambda_high"],
+        "lambda_fit": fit, "lambda_pairs": pairs, "constant_lambda": problem is None,
+        "targets": target_rows,
+        "break_even": break_even(context.device, round_us, rows),
+        "budget": {"seconds": float(request.budget_seconds), "work": context.budget.total,
+                   "work_spent": context.budget.spent, "hard_limit_reached": bool(context.budget.cut_short),
+                   "cut_short": list(context.budget.cut_short),
+                   "methods": {str(d): request.method_of(d) for d in request.distances}},
+        "cautions": list(CAUTIONS),
+        "notes": notes,
+    }
+    finite: dict[str, Any] = _finite(result)
+    return finite
+
+
+def _finite(value: Any) -> Any:
+    """Plain JSON types; non-finite floats become None."""
+    if isinstance(value, dict):
+        return {str(k): _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return float(value) if math.isfinite(float(value)) else None
+    return value

@@ -1,0 +1,245 @@
+"""Stratified sampling of one point: which numbers of faults w to sample, how many shots each, and running them.
+
+The plan depends only on the device, the options, the seed and the counts
+already drawn (never on timings), so a forecast gives the same numbers on any
+machine load and any number of workers.
+
+1. **Scan**: every w below the onset k0 = (d + 1) / 2 (a decoder that fails
+   with fewer faults shows it there, and the onset is lowered), then a grid of
+   w from k0 upwards (steps of 25%, up to mu + 6 sigma of W or 8 k0,
+   whichever is larger; doubled up to three times while no failure is seen),
+   ``SCAN_SHOTS`` shots each.
+2. **Provisional spectrum**: :func:`codebench.forecast.rare_events.fit_spectrum`
+   (two terms) on the scan; contributions P(W = w) f(w) locate the window of w
+   that holds 99% of P_L.
+3. **Strata**: every w of that window (thinned to at most ``MAX_WINDOW``
+   values) plus the scan's w above it up to where f reaches 5% (they pin the
+   spectrum's shape). Each stratum runs to ``FAILURE_TARGET`` failures or a
+   common shot cap, the largest cap (at most twice the shots the provisional
+   f(w) expects for the target) whose expected work (shots x detectors) fits
+   in the distance's share of the budget.
+
+Every stratum's batches follow one fixed schedule (1,024, 2,048, 4,096, then
+8,192 shots) with seeds from (seed, point, w, batch index), and a stratum's
+counts are always a prefix of that schedule counted in batch order, so the scan's
+shots are reused by step 3 and a larger budget only adds batches.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+import numpy as np
+
+from codebench.engine.executors import Executor
+from codebench.engine.fault_sampling import fault_batch_seed
+from codebench.engine.worker import BatchResult, BatchTask
+from codebench.forecast.rare_events import fit_spectrum, poisson_binomial
+from codebench.forecast.sampling import HardStop
+
+__all__ = ["FAILURE_TARGET", "StrataRun", "plan_window"]
+
+SCAN_SHOTS = 1024
+FAILURE_TARGET = 100
+MAX_WINDOW = 16
+SCAN_STEP = 1.25
+BATCH_SCHEDULE = (1024, 2048, 4096)
+STEADY_BATCH = 8192
+#: Spectrum fraction up to which strata above the dominant window are kept.
+SHAPE_LIMIT = 0.05
+
+
+def schedule_prefix(shots: int) -> list[int]:
+    """Batch sizes of a stratum's first ``shots`` shots (whole batches, at least one).
+
+    >>> schedule_prefix(7000), schedule_prefix(20000)
+    ([1024, 2048, 4096], [1024, 2048, 4096, 8192, 8192])
+    """
+    sizes: list[int] = []
+    total = 0
+    index = 0
+    while True:
+        size = BATCH_SCHEDULE[index] if index < len(BATCH_SCHEDULE) else STEADY_BATCH
+        if sizes and total + size > shots:
+            return sizes
+        sizes.append(size)
+        total += size
+        index += 1
+
+
+#: Batch index of a stratum's batches: w in the high bits, so results name their stratum.
+STRATUM_SHIFT = 32
+
+
+@dataclass
+class Stratum:
+    """The batches of one w that have come back, and how many of them the plan counts."""
+
+    faults: int
+    batches: dict[int, BatchResult] = field(default_factory=dict)
+    used: int = 0
+
+    def prefix(self, sizes: list[int], target: int) -> tuple[int, bool]:
+        """Batches counted under this schedule and target (batch order), and whether that is final."""
+        failures = 0
+        for index in range(len(sizes)):
+            result = self.batches.get(index)
+            if result is None:
+                return index, False
+            failures += result.failures
+            if failures >= target:
+                return index + 1, True
+        return len(sizes), True
+
+    def totals(self) -> tuple[int, int, float]:
+        """Shots, failures and seconds of the counted batches."""
+        chosen = [self.batches[i] for i in range(self.used)]
+        return (sum(r.shots for r in chosen), sum(r.failures for r in chosen), sum(r.seconds for r in chosen))
+
+
+@dataclass
+class StrataRun:
+    """Runs exactly-w batches of one point on an executor, in batch order, reusing what was drawn."""
+
+    point_key: str
+    params: dict[str, Any]
+    seed: int
+    executor: Executor
+    stopped: Callable[[], bool]
+    detectors: int
+    strata: dict[int, Stratum] = field(default_factory=dict)
+    work_done: float = 0.0
+
+    def run(self, plan: dict[int, int], target: int | None) -> None:
+        """Sample every stratum w of ``plan`` up to ``plan[w]`` shots, stopping early at ``target`` failures."""
+        limit = target if target is not None else 1 << 62
+        schedules = {w: schedule_prefix(shots) for w, shots in plan.items()}
+        for w in plan:
+            self.strata.setdefault(w, Stratum(w))
+        in_flight: set[tuple[int, int]] = set()
+        while not self.stopped():
+            for w, sizes in schedules.items():
+                stratum = self.strata[w]
+                if stratum.prefix(sizes, limit)[1]:
+                    continue
+                mine = sum(1 for v, _ in in_flight if v == w)
+                for index, size in enumerate(sizes):
+                    if len(in_flight) >= self.executor.capacity or mine >= 2:
+                        break
+                    if index in stratum.batches or (w, index) in in_flight:
+                        continue
+                    seed = fault_batch_seed(self.seed, self.point_key, w, index, size)
+                    self.executor.submit(BatchTask(self.point_key, self.params, (w << STRATUM_SHIFT) | index,
+                                                   size, seed, faults=w))
+                    in_flight.add((w, index))
+                    mine += 1
+            if not in_flight:
+                break
+            try:
+                finished = self.executor.completed(timeout=1.0)
+            except HardStop:
+                break
+            for result in finished:
+                w, index = result.batch_index >> STRATUM_SHIFT, result.batch_index & ((1 << STRATUM_SHIFT) - 1)
+                in_flight.discard((w, index))
+                self.strata[w].batches[index] = result
+                self.work_done += result.shots * self.detectors
+        for w, sizes in schedules.items():
+            self.strata[w].used = self.strata[w].prefix(sizes, limit)[0]
+
+    def table(self) -> dict[int, tuple[int, int]]:
+        """``{w: (shots, failures)}`` over the counted batches of every stratum."""
+        out = {}
+        for w, stratum in sorted(self.strata.items()):
+            shots, failures, _ = stratum.totals()
+            if shots:
+                out[w] = (shots, failures)
+        return out
+
+    def seconds(self) -> float:
+        return sum(stratum.totals()[2] for stratum in self.strata.values())
+
+
+def scan_grid(onset: int, top: int) -> list[int]:
+    """w values of the scan: onset, then steps of 25% up to ``top``.
+
+    >>> scan_grid(3, 12)
+    [3, 4, 5, 6, 7, 9, 11, 12]
+    """
+    grid = [onset]
+    while grid[-1] < top:
+        grid.append(min(top, max(grid[-1] + 1, int(round(grid[-1] * SCAN_STEP)))))
+    return grid
+
+
+def plan_window(pmf: np.ndarray, spectrum_f: np.ndarray, onset: int) -> tuple[int, int]:
+    """Smallest range [a, b] of w >= onset holding 99% of sum P(W = w) f(w)."""
+    contributions = pmf * spectrum_f
+    contributions[:onset] = 0.0
+    total = contributions.sum()
+    if total <= 0:
+        return onset, onset
+    cumulative = np.cumsum(contributions) / total
+    a = int(np.searchsorted(cumulative, 0.005))
+    b = int(np.searchsorted(cumulative, 0.995))
+    return max(a, onset), max(b, onset)
+
+
+def water_fill(expected: dict[int, float], work_per_shot: float, share: float) -> int:
+    """Largest common shot cap c with sum_w min(expected_w, c) x work_per_shot <= share (at least SCAN_SHOTS)."""
+    def spend(cap: float) -> float:
+        return sum(min(e, cap) for e in expected.values()) * work_per_shot
+
+    lo, hi = float(SCAN_SHOTS), max(float(SCAN_SHOTS), max(expected.values(), default=SCAN_SHOTS))
+    if spend(hi) <= share:
+        return int(hi)
+    for _ in range(60):
+        mid = math.sqrt(lo * hi)
+        lo, hi = (mid, hi) if spend(mid) <= share else (lo, mid)
+    return int(lo)
+
+
+def plan_and_sample(run: StrataRun, probabilities: np.ndarray, distance: int, share: float,
+                    say: Callable[[str], None]) -> tuple[np.ndarray, float]:
+    """Scan, choose the strata, sample them; returns P(W = w) (w = 0..w_max) and its tail bound."""
+    mean = float(probabilities.sum())
+    sigma = math.sqrt(float(np.sum(probabilities * (1 - probabilities))))
+    onset = (distance + 1) // 2
+    top = max(int(math.ceil(mean + 6 * sigma)) + 1, 8 * onset)
+    n_mech = probabilities.size
+    for _ in range(4):
+        top = min(top, n_mech)
+        # Below the onset too: a decoder that fails with fewer than (d + 1) / 2 faults shows it there.
+        grid = list(range(1, onset)) + scan_grid(onset, top)
+        say(f"d = {distance}: scanning w = {grid[0]}..{grid[-1]} ({len(grid)} strata, {SCAN_SHOTS:,} shots each)")
+        run.run({w: SCAN_SHOTS for w in grid}, None)
+        if run.stopped() or any(f for _, f in run.table().values()) or top >= n_mech:
+            break
+        top *= 2
+    table = run.table()
+    w_max = int(min(n_mech, max(max(table, default=onset), math.ceil(mean + 12 * sigma) + 10)))
+    pmf, tail = poisson_binomial(probabilities, w_max)
+    failing = {w: v for w, v in table.items() if v[1] > 0}
+    if not failing or run.stopped():
+        return pmf, tail
+    ws = np.array(sorted(table), dtype=np.int64)
+    fit = fit_spectrum(ws, [table[w][0] for w in ws], [table[w][1] for w in ws],
+                       min(onset, min(failing)), 2, 0.5)
+    all_w = np.arange(w_max + 1)
+    f_all = fit(all_w)
+    a, b = plan_window(pmf, f_all, fit.k0)
+    window = list(range(a, b + 1))
+    if len(window) > MAX_WINDOW:
+        step = math.ceil(len(window) / MAX_WINDOW)
+        window = sorted(set(window[::step]) | {b})
+    above = [w for w in table if w > b and fit(np.array([w]))[0] <= max(SHAPE_LIMIT, float(f_all[b]))]
+    strata = sorted(set(window) | set(above))
+    # Twice the expected shots: the failure target, not the cap, should usually end a stratum.
+    expected = {w: 2 * FAILURE_TARGET / max(float(fit(np.array([w]))[0]), 1e-300) for w in strata}
+    cap = water_fill(expected, run.detectors, max(0.0, share - run.work_done))
+    say(f"d = {distance}: {len(strata)} strata w = {strata[0]}..{strata[-1]} (P_L dominated by w = {a}..{b}), "
+        f"up to {FAILURE_TARGET} failures or {cap:,} shots each")
+    run.run({w: cap for w in strata}, FAILURE_TARGET)
+    return pmf, tail
