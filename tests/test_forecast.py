@@ -24,6 +24,7 @@ from __future__ import annotations
 
 import json
 import math
+import time
 from pathlib import Path
 from typing import Any
 
@@ -32,6 +33,7 @@ import pytest
 from codebench.cli import main
 from codebench.errors import ConfigError, DeviceFileError
 from codebench.forecast import CAUTIONS, forecast, idle_error, improve_device, parse_improve
+from codebench.forecast.plan import WORK_PER_SECOND
 from codebench.noise.calibration import load_device
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -67,7 +69,7 @@ def tomita_svore_idle(t_us: float, t1_us: float, t2_us: float) -> float:
 @pytest.fixture(scope="module")
 def improved(tmp_path_factory: pytest.TempPathFactory) -> tuple[dict[str, Any], Path]:
     out = tmp_path_factory.mktemp("forecast-improved")
-    return forecast(IMPROVED, distances=(3, 5), budget_seconds=15, workers=2, out=out), out
+    return forecast(IMPROVED, distances=(3, 5), work=2e9, workers=2, out=out), out
 
 
 # --- the result: keys, types, files --------------------------------------------------------------
@@ -87,7 +89,7 @@ def test_json_keys_and_types(improved: tuple[dict[str, Any], Path]) -> None:
         assert isinstance(row["distance"], int) and isinstance(row["qubits"], int)
         for key in ("per_round_rate", "low", "high"):
             assert isinstance(row[key], float), key
-        assert isinstance(row["method"], str) and row["method_kind"] in ("direct", "extrapolated")
+        assert isinstance(row["method"], str) and row["method_kind"] in ("direct", "extrapolated", "stratified")
         assert row["low"] <= row["per_round_rate"] <= row["high"]
     assert [r["distance"] for r in result["distances"]] == [3, 5]
     for target in result["targets"]:
@@ -179,7 +181,7 @@ def test_break_even_best_and_median_over_listed_qubits() -> None:
     values = sorted(tomita_svore_idle(round_us, q.t1_us, q.t2_us) for q in device.qubits.values())
     assert len(values) == 17
     assert min(values) == pytest.approx(idle_error(round_us, 140.0, 150.0), rel=1e-12)  # qubit m6
-    from codebench.forecast import _break_even
+    from codebench.forecast.breakeven import break_even as _break_even
 
     be = _break_even(device, round_us, [{"distance": 3, "per_round_rate": 7e-3, "high": 8e-3}])
     assert be["best_qubit"] == "m6"
@@ -203,8 +205,9 @@ def _agree(a: dict[str, Any], b: dict[str, Any]) -> None:
 @pytest.mark.parametrize("device, budget", [(IMPROVED, 8.0), (GOAL, 12.0)], ids=["improved", "goal"])
 def test_direct_and_extrapolated_agree_at_d3(device: Path, budget: float) -> None:
     """d = 3, where both are feasible: sampled at s = 1 and extrapolated from s = 2..5.7 agree (common practice)."""
-    direct = forecast(device, distances=(3, 5), method={3: "direct"}, budget_seconds=budget, workers=2)
-    extrapolated = forecast(device, distances=(3, 5), method={3: "extrapolated"}, budget_seconds=budget, workers=2)
+    direct = forecast(device, distances=(3, 5), method={3: "direct"}, work=budget * WORK_PER_SECOND, workers=2)
+    extrapolated = forecast(device, distances=(3, 5), method={3: "extrapolated"}, work=budget * WORK_PER_SECOND,
+                            workers=2)
     a, b = direct["distances"][0], extrapolated["distances"][0]
     assert a["method"] == "direct" and b["method"].startswith("extrapolated (power law over scales 2-5.65685")
     assert b["scales"] == [2.0, 2.828427, 4.0, 5.656854]
@@ -216,8 +219,9 @@ def test_direct_and_extrapolated_agree_at_d3(device: Path, budget: float) -> Non
 @pytest.mark.slow
 def test_direct_and_extrapolated_agree_at_d5_goal() -> None:
     """d = 5 on the goal device: direct needs minutes, extrapolated seconds; they agree (common practice)."""
-    direct = forecast(GOAL, distances=(3, 5), method={3: "direct", 5: "direct"}, budget_seconds=300, workers=2)
-    extrapolated = forecast(GOAL, distances=(3, 5), method={5: "extrapolated"}, budget_seconds=30, workers=2)
+    direct = forecast(GOAL, distances=(3, 5), method={3: "direct", 5: "direct"}, work=300 * WORK_PER_SECOND,
+                      workers=2)
+    extrapolated = forecast(GOAL, distances=(3, 5), method={5: "extrapolated"}, work=30 * WORK_PER_SECOND, workers=2)
     a, b = direct["distances"][1], extrapolated["distances"][1]
     assert a["failures"] >= 100
     _agree(a, b)
@@ -255,7 +259,7 @@ def _cli_json(args: list[str], capsys: pytest.CaptureFixture[str]) -> dict[str, 
 
 def test_improve_lowers_the_logical_error(capsys: pytest.CaptureFixture[str]) -> None:
     """Halving every two-qubit gate error lowers the per-round rate beyond both intervals (common practice)."""
-    common = ["forecast", str(CURRENT), "--distances", "3,5", "--budget-seconds", "10", "--workers", "2",
+    common = ["forecast", str(CURRENT), "--distances", "3,5", "--work", "1.5e9", "--workers", "2",
               "--quiet", "--format", "json"]
     base = _cli_json(common, capsys)
     better = _cli_json(common + ["--improve", "gate_2q_error=0.5"], capsys)
@@ -283,7 +287,7 @@ def test_short_budget_still_answers_every_distance() -> None:
 @pytest.mark.slow
 def test_bench_goal_current_device() -> None:
     """scripts/bench_forecast.py's precision goal: Lambda within +-15% on the current device (its time is benched there)."""
-    result = forecast(CURRENT, distances=(3, 5, 7), budget_seconds=60, workers=2)
+    result = forecast(CURRENT, distances=(3, 5, 7), work=60 * WORK_PER_SECOND, workers=2)
     lam = result["lambda"]
     assert max(result["lambda_high"] - lam, lam - result["lambda_low"]) / lam <= 0.15
 
@@ -309,6 +313,9 @@ def test_bench_goal_current_device() -> None:
     ["--target", "0.7"],
     ["--workers", "0"],
     ["--method", "guess"],
+    ["--work", "0"],
+    ["--work", "lots"],
+    ["--basis", "Z,Z"],
 ])
 def test_cli_bad_input_exits_2_with_one_line(extra: list[str], capsys: pytest.CaptureFixture[str]) -> None:
     """Bad input: exit status 2 and one line on standard error (the project's CLI rule)."""
@@ -332,3 +339,72 @@ def test_cli_bad_device_files(tmp_path: Path, capsys: pytest.CaptureFixture[str]
         assert main(args) == 2
         lines = capsys.readouterr().err.strip().splitlines()
         assert len(lines) == 1 and lines[0].startswith("codebench: "), lines
+
+
+# --- determinism, defaults, bases ----------------------------------------------------------------
+
+
+def _numbers(result: dict[str, Any]) -> list[Any]:
+    """Every planned or estimated number (not the timings) of a forecast."""
+    keys = ("distance", "per_round_rate", "low", "high", "method", "shots", "failures", "w_sampled", "spectrum")
+    return [[row.get(k) for k in keys] for row in result["distances"]] + [result["lambda"], result["targets"]]
+
+
+def _busy(seconds: float) -> None:
+    end = time.monotonic() + seconds
+    while time.monotonic() < end:
+        pass
+
+
+def test_same_numbers_on_a_busy_machine_and_any_worker_count() -> None:
+    """The plan reads counts and counted work only: a CPU-bound process beside it, or 1 worker instead of 2,
+    changes no number (the issue's determinism requirement; seeds fixed, so exact equality)."""
+    import multiprocessing
+
+    args = dict(distances=(3, 5), work=6e8, seed=3)
+    quiet = forecast(GOAL, workers=2, **args)  # type: ignore[arg-type]
+    hog = multiprocessing.get_context("spawn").Process(target=_busy, args=(120.0,))
+    hog.start()
+    try:
+        busy = forecast(GOAL, workers=2, **args)  # type: ignore[arg-type]
+    finally:
+        hog.terminate()
+        hog.join()
+    single = forecast(GOAL, workers=1, **args)  # type: ignore[arg-type]
+    assert _numbers(quiet) == _numbers(busy) == _numbers(single)
+    assert any(r["method_kind"] == "stratified" for r in quiet["distances"])
+
+
+def test_heavy_hex_defaults_to_flag_matching() -> None:
+    """heavy_hex needs its flags decoded: its default decoder is flag_matching, and on the improved device the
+    forecast is below threshold (Lambda > 1), as the flag-qubit heavy-hexagon code should be at 1e-3 two-qubit
+    error (Chamberland et al., PRX 10, 011022 (2020), from memory: threshold near 0.45% for circuit noise)."""
+    result = forecast(IMPROVED, code="heavy_hex", distances=(3, 5), work=1.5e9, workers=2)
+    assert result["decoder"] == "flag_matching"
+    assert result["lambda"] is not None and result["lambda"] > 1
+    assert forecast(IMPROVED, code="rotated_surface", distances=(3, 5), work=1e8, workers=1)["decoder"] == "mwpm"
+
+
+def test_both_bases_and_the_logical_qubit() -> None:
+    """--basis both: each basis forecast; the logical qubit fails when either does, 1 - (1 - eZ)(1 - eX)
+    (independent bases, common practice)."""
+    result = forecast(IMPROVED, distances=(3, 5), basis="both", work=1e9, workers=2)
+    assert result["bases"] == ["Z", "X"]
+    for i, row in enumerate(result["distances"]):
+        z = result["per_basis"]["Z"][i]["per_round_rate"]
+        x = result["per_basis"]["X"][i]["per_round_rate"]
+        assert row["per_round_rate"] == pytest.approx(1 - (1 - z) * (1 - x), rel=1e-12)
+        assert row["low"] <= row["per_round_rate"] <= row["high"]
+
+
+def test_no_target_distance_when_lambda_is_not_constant() -> None:
+    """Near threshold (Lambda interval reaching 1) the targets get no distance and say why (issue requirement)."""
+    from codebench.forecast.estimators import targets
+
+    fit = {"lambda": 1.05, "lambda_low": 0.9, "lambda_high": 1.2, "C": 0.05, "log_cov": [[0.01, 0.0], [0.0, 0.01]],
+           "consistency_p": 0.5, "chi2": 0.1, "dof": 1}
+    rows = targets("rotated_surface", fit, [1e-9], 7)
+    assert rows[0]["distance"] is None and "reaches 1" in rows[0]["not_projected"]
+    fit.update({"lambda": 3.0, "lambda_low": 2.5, "lambda_high": 3.5, "consistency_p": 1e-4, "chi2": 15.0})
+    rows = targets("rotated_surface", fit, [1e-9], 7)
+    assert rows[0]["distance"] is None and "disagree" in rows[0]["not_projected"]

@@ -44,9 +44,7 @@ import numpy as np
 
 from codebench.codes import CODE_FAMILIES
 from codebench.codes.layout import Basis
-from codebench.decoders import get_decoder
 from codebench.engine.executors import Executor, make_executor
-from codebench.engine.fault_sampling import FaultTable
 from codebench.errors import ConfigError, not_allowed
 from codebench.export import decode_us_per_round
 from codebench.forecast import strata as strata_plan
@@ -61,7 +59,6 @@ from codebench.forecast.estimators import (
 )
 from codebench.forecast.extrapolation import sample_raised, scale_cap
 from codebench.forecast.plan import WorkBudget
-from codebench.forecast.rare_events import stratified_estimate, upper_bound_without_failures
 from codebench.forecast.request import DEFAULT_DISTANCES, DEFAULT_SEED, DEFAULT_TARGETS, ForecastRequest, parse_bases
 from codebench.forecast.sampling import Sampler, SharedPool
 from codebench.forecast.whatif import improve_device
@@ -247,21 +244,11 @@ def _stratified(context: Context, sampler: Sampler, distance: int, share: float)
     request = context.request
     point = parse_sweep({"name": "stratified", "seed": request.seed, "study": [sampler.study(distance, [1.0])]},
                         source="forecast").points[0]
-    decoder_cls = get_decoder(point.decoder)
-    circuit = point.circuit()
-    table = FaultTable.from_dem(circuit.detector_error_model(decompose_errors=decoder_cls.wants_decomposed))
-    key = point.key(request.seed)
-    run = strata_plan.StrataRun(key, point.params(), request.seed, context.pool,
-                                lambda: context.pool.stopped or context.budget.expired(), table.num_detectors)
-    pmf, tail = strata_plan.plan_and_sample(run, table.probabilities, distance, share, sampler.say)
-    context.budget.charge(run.work_done)
-    counts = run.table()
-    mean = float(table.probabilities.sum())
-    if not any(k for _, k in counts.values()):
-        return stratified_row(None, counts, distance, mean, upper_bound_without_failures(pmf, tail, counts))
-    estimate = stratified_estimate(pmf, tail, counts, distance, table.num_observables, seed=request.seed)
-    row = stratified_row(estimate, counts, distance, mean)
-    row.details["mechanisms"] = int(table.probabilities.size)
+    result = strata_plan.sample_point(point, request.seed, context.pool, share, sampler.say,
+                                      lambda: context.pool.stopped or context.budget.expired())
+    context.budget.charge(result.work)
+    row = stratified_row(result.estimate, result.table, distance, result.mean_faults, result.upper_bound)
+    row.details["mechanisms"] = result.mechanisms
     return row
 
 

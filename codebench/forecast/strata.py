@@ -33,13 +33,21 @@ from typing import Any, Callable
 
 import numpy as np
 
+from codebench.decoders import get_decoder
 from codebench.engine.executors import Executor
-from codebench.engine.fault_sampling import fault_batch_seed
+from codebench.engine.fault_sampling import FaultTable, fault_batch_seed
+from codebench.engine.points import Point
 from codebench.engine.worker import BatchResult, BatchTask
-from codebench.forecast.rare_events import fit_spectrum, poisson_binomial
+from codebench.forecast.rare_events import (
+    StratifiedEstimate,
+    fit_spectrum,
+    poisson_binomial,
+    stratified_estimate,
+    upper_bound_without_failures,
+)
 from codebench.forecast.sampling import HardStop
 
-__all__ = ["FAILURE_TARGET", "StrataRun", "plan_window"]
+__all__ = ["FAILURE_TARGET", "PointStrata", "StrataRun", "plan_window", "sample_point"]
 
 SCAN_SHOTS = 1024
 FAILURE_TARGET = 100
@@ -199,6 +207,45 @@ def water_fill(expected: dict[int, float], work_per_shot: float, share: float) -
         mid = math.sqrt(lo * hi)
         lo, hi = (mid, hi) if spend(mid) <= share else (lo, mid)
     return int(lo)
+
+
+@dataclass
+class PointStrata:
+    """What stratified sampling of one point gave: the counts per w, P(W = w), and the estimate."""
+
+    table: dict[int, tuple[int, int]]
+    pmf: np.ndarray
+    tail: float
+    mean_faults: float
+    mechanisms: int
+    observables: int
+    work: float
+    estimate: StratifiedEstimate | None
+    upper_bound: float | None
+
+
+def sample_point(point: Point, seed: int, executor: Executor, share: float, say: Callable[[str], None],
+                 stopped: Callable[[], bool] = lambda: False) -> PointStrata:
+    """Stratified sampling and estimate of one point (any noise model) within ``share`` counted work.
+
+    The detector error model is the one the engine's workers build for the
+    point (decomposed when its decoder wants that), so the exactly-w shots are
+    decoded by the same compiled decoder.
+    """
+    decoder_cls = get_decoder(point.decoder)
+    table = FaultTable.from_dem(point.circuit().detector_error_model(decompose_errors=decoder_cls.wants_decomposed))
+    run = StrataRun(point.key(seed), point.params(), seed, executor, stopped, table.num_detectors)
+    pmf, tail = plan_and_sample(run, table.probabilities, point.distance, share, say)
+    counts = run.table()
+    mean = float(table.probabilities.sum())
+    estimate = None
+    upper = None
+    if any(k for _, k in counts.values()):
+        estimate = stratified_estimate(pmf, tail, counts, point.distance, table.num_observables, seed=seed)
+    else:
+        upper = upper_bound_without_failures(pmf, tail, counts)
+    return PointStrata(counts, pmf, tail, mean, int(table.probabilities.size), table.num_observables,
+                       run.work_done, estimate, upper)
 
 
 def plan_and_sample(run: StrataRun, probabilities: np.ndarray, distance: int, share: float,
