@@ -269,8 +269,8 @@ def build_parser() -> argparse.ArgumentParser:
                     help="budget as counted work (shots x detectors) instead: no time limit, the same plan "
                          "on any machine")
     fc.add_argument("--improve", type=_improvement, action="append", metavar="PARAM=FACTOR",
-                    help="what-if: scale t1_us/t2_us (factor on 1/T), gate_1q_error, gate_2q_error, "
-                         "readout_error or reset_error; repeatable")
+                    help="what-if: scale t1_us/t2_us (factor on 1/T), gate_1q_error, gate_2q_error, readout_error, "
+                         "reset_error, or noise (all of them together); repeatable")
     fc.add_argument("--method", choices=["auto", "direct", "extrapolated", "stratified"], default="auto",
                     help="how each distance is estimated (default: auto: direct where it reaches "
                          "100 failures in the budget, else stratified by fault count)")

@@ -408,3 +408,30 @@ def test_no_target_distance_when_lambda_is_not_constant() -> None:
     fit.update({"lambda": 3.0, "lambda_low": 2.5, "lambda_high": 3.5, "consistency_p": 1e-4, "chi2": 15.0})
     rows = targets("rotated_surface", fit, [1e-9], 7)
     assert rows[0]["distance"] is None and "disagree" in rows[0]["not_projected"]
+
+
+def test_improve_noise_reuses_the_f_of_w_table(tmp_path: Path) -> None:
+    """Scaling every error together keeps the odds proportional: the what-if reuses the stored exactly-w
+    batches (the conditional law given w depends on the odds only up to a common factor; see
+    codebench.engine.fault_sampling). A single-parameter what-if changes the mix and draws a new table."""
+    base = forecast(GOAL, distances=(5, 7), work=4e8, workers=2, out=tmp_path, method="stratified")
+    scaled = forecast(GOAL, distances=(5, 7), work=4e8, workers=2, out=tmp_path, method="stratified",
+                      improve={"noise": 0.8})
+    for a, b in zip(base["distances"], scaled["distances"]):
+        assert b["table_reused_from"] == "Larkspur Aster-X (goal)"
+        assert b["shots"] >= a["shots"]
+        assert b["per_round_rate"] < a["per_round_rate"]
+    other = forecast(GOAL, distances=(5, 7), work=4e8, workers=2, out=tmp_path, method="stratified",
+                     improve={"gate_2q_error": 0.5})
+    assert all(r["table_reused_from"] is None for r in other["distances"])
+
+
+def test_hard_time_limit_is_reported(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Past the hard limit sampling stops, and the forecast names what was cut short (no silent method change)."""
+    import codebench.forecast.plan as plan
+
+    monkeypatch.setattr(plan, "HARD_LIMIT", 0.0)
+    result = forecast(IMPROVED, distances=(3, 5), budget_seconds=5.0, workers=2)
+    assert result["budget"]["hard_limit_reached"]
+    assert all(any("cut short" in f for f in r["flags"]) for r in result["distances"])
+    assert any("hard time limit" in n for n in result["notes"])

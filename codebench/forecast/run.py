@@ -200,6 +200,7 @@ def _forecast_basis(context: Context, basis: Basis, index: int) -> list[dict[str
         one = sampler.samples.get((d, 1.0))
         detectors = one.detectors if one is not None else 0
         if one is None or context.pool.stopped:
+            context.budget.cut_short.append(f"{basis}:d={d}")
             rows.append(_cut_short(d, one, context))
             continue
         method, reason = _choose(request.method_of(d), one, share)
@@ -244,11 +245,18 @@ def _stratified(context: Context, sampler: Sampler, distance: int, share: float)
     request = context.request
     point = parse_sweep({"name": "stratified", "seed": request.seed, "study": [sampler.study(distance, [1.0])]},
                         source="forecast").points[0]
+    label = context.device.name + (" with --improve " + ",".join(f"{k}={v:g}" for k, v in request.improve.items())
+                                   if request.improve else "")
     result = strata_plan.sample_point(point, request.seed, context.pool, share, sampler.say,
-                                      lambda: context.pool.stopped or context.budget.expired())
+                                      lambda: context.pool.stopped or context.budget.expired(),
+                                      library=context.store / "strata", source=label)
     context.budget.charge(result.work)
     row = stratified_row(result.estimate, result.table, distance, result.mean_faults, result.upper_bound)
     row.details["mechanisms"] = result.mechanisms
+    row.details["table_reused_from"] = result.reused_from
+    if result.reused_from is not None:
+        row.flags.append(f"f(w) table reused from {result.reused_from} (odds proportional within "
+                         f"{result.odds_spread:.2%}; its batches were decoded with that device's weights)")
     return row
 
 
@@ -293,7 +301,7 @@ def _either_basis(per_basis: dict[str, list[dict[str, Any]]]) -> list[dict[str, 
             "method_kind": "combined", "shots": sum(r["shots"] for r in rows),
             "failures": sum(r["failures"] for r in rows), "flags": [f for r in rows for f in r["flags"]],
             "log_rate": None if not rate else math.log(rate), "log_rate_variance": log_var,
-            "decode_us_per_round": max((r["decode_us_per_round"] or 0.0) for r in rows) or None,
+            "decode_us_per_round": max((r.get("decode_us_per_round") or 0.0) for r in rows) or None,
         })
     return out
 

@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, Callable
 
 import numpy as np
@@ -46,6 +47,7 @@ from codebench.forecast.rare_events import (
     upper_bound_without_failures,
 )
 from codebench.forecast.sampling import HardStop
+from codebench.forecast.tables import find_reusable, save_table
 
 __all__ = ["FAILURE_TARGET", "PointStrata", "StrataRun", "plan_window", "sample_point"]
 
@@ -222,20 +224,39 @@ class PointStrata:
     work: float
     estimate: StratifiedEstimate | None
     upper_bound: float | None
+    reused_from: str | None = None
+    odds_spread: float | None = None
 
 
 def sample_point(point: Point, seed: int, executor: Executor, share: float, say: Callable[[str], None],
-                 stopped: Callable[[], bool] = lambda: False) -> PointStrata:
+                 stopped: Callable[[], bool] = lambda: False, library: Path | None = None,
+                 source: str = "") -> PointStrata:
     """Stratified sampling and estimate of one point (any noise model) within ``share`` counted work.
 
     The detector error model is the one the engine's workers build for the
     point (decomposed when its decoder wants that), so the exactly-w shots are
-    decoded by the same compiled decoder.
+    decoded by the same compiled decoder. With ``library`` (a folder), a
+    stored f(w) table of proportional odds is reused and topped up, and the
+    table is stored for later what-ifs (:mod:`codebench.forecast.tables`).
     """
     decoder_cls = get_decoder(point.decoder)
     table = FaultTable.from_dem(point.circuit().detector_error_model(decompose_errors=decoder_cls.wants_decomposed))
     run = StrataRun(point.key(seed), point.params(), seed, executor, stopped, table.num_detectors)
+    structure = table.structure_digest()
+    decoder_params = {"decoder": point.decoder, "options": dict(point.decoder_options), "code": point.code,
+                      "distance": point.distance, "rounds": point.rounds, "basis": point.basis}
+    reused = find_reusable(library, structure, decoder_params, seed, table.probabilities) if library else None
+    if reused is not None:
+        saved, spread = reused
+        run.point_key = saved.seed_key
+        run.strata = {w: Stratum(w, dict(batches)) for w, batches in saved.batches.items()}
+        say(f"d = {point.distance}: reusing the f(w) table of {saved.source or 'an earlier forecast'} "
+            f"(odds proportional within {spread:.2%})")
     pmf, tail = plan_and_sample(run, table.probabilities, point.distance, share, say)
+    if library is not None:
+        save_table(library, structure, decoder_params, seed, run.point_key,
+                   saved.probabilities if reused is not None else table.probabilities,
+                   {w: s.batches for w, s in run.strata.items()}, saved.source if reused is not None else source)
     counts = run.table()
     mean = float(table.probabilities.sum())
     estimate = None
@@ -245,7 +266,8 @@ def sample_point(point: Point, seed: int, executor: Executor, share: float, say:
     else:
         upper = upper_bound_without_failures(pmf, tail, counts)
     return PointStrata(counts, pmf, tail, mean, int(table.probabilities.size), table.num_observables,
-                       run.work_done, estimate, upper)
+                       run.work_done, estimate, upper, None if reused is None else (reused[0].source or "earlier"),
+                       None if reused is None else reused[1])
 
 
 def plan_and_sample(run: StrataRun, probabilities: np.ndarray, distance: int, share: float,

@@ -11,8 +11,10 @@ from codebench.noise.calibration import Device, parse_device
 
 __all__ = ["IMPROVABLE", "check_improve", "improve_device", "parse_improve"]
 
-#: Parameters ``improve`` may scale. For t1_us / t2_us the factor applies to 1/T.
-IMPROVABLE = ("t1_us", "t2_us", "gate_1q_error", "gate_2q_error", "readout_error", "reset_error")
+#: Parameters ``improve`` may scale. For t1_us / t2_us the factor applies to 1/T; ``noise`` scales all of them
+#: together (the sweep file's ``scale``), which keeps the mechanisms proportional so f(w) tables are reused.
+IMPROVABLE = ("t1_us", "t2_us", "gate_1q_error", "gate_2q_error", "readout_error", "reset_error", "noise")
+SCALED_TOGETHER = IMPROVABLE[:-1]
 
 
 def parse_improve(text: str) -> tuple[str, float]:
@@ -51,7 +53,8 @@ def improve_device(device: Device, improve: Mapping[str, float], source: str = "
     ``t1_us`` / ``t2_us``: the factor multiplies 1/T (0.5 doubles T). The
     error parameters are multiplied directly. Each applies to the defaults,
     to every per-qubit value and (``gate_2q_error``) every per-pair value;
-    ``readout_error`` also scales the conditional readout errors. The
+    ``readout_error`` also scales the conditional readout errors; ``noise``
+    scales every one of them together (like a sweep's ``scale``). The
     modified data are parsed again with
     :func:`~codebench.noise.calibration.parse_device`, so a factor that makes
     a value invalid (a probability above 0.5, T2 > 2 T1) raises
@@ -75,7 +78,10 @@ def improve_device(device: Device, improve: Mapping[str, float], source: str = "
             table[key] = table[key] / factor if inverse else table[key] * factor
 
     tables = [data.get("defaults")] + list(data.get("qubits", []) or [])
+    expanded: list[tuple[str, float]] = []
     for name, factor in factors.items():
+        expanded += [(each, factor) for each in SCALED_TOGETHER] if name == "noise" else [(name, factor)]
+    for name, factor in expanded:
         inverse = name in ("t1_us", "t2_us")
         keys = [name] + (["readout_error_0to1", "readout_error_1to0"] if name == "readout_error" else [])
         for table in tables:
