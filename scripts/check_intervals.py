@@ -2,7 +2,9 @@
 
 For each case, a long direct run (stim's circuit sampler and the point's
 decoder, to ``--reference-failures`` failures) gives the reference rate; then
-each method runs under ``--seeds`` seeds with a small budget, and the table
+each method runs under ``--seeds`` seeds with a small budget (the reference
+should be several times more precise than the intervals it checks, or the
+measured coverage reads low), and the table
 reports how many intervals contain the reference, and their median width
 (high / low). Methods: ``stratified`` (the point alone, counted work
 ``--work`` each) and ``extrapolated`` (``codebench.forecast.forecast`` with
@@ -10,7 +12,7 @@ reports how many intervals contain the reference, and their median width
 
 Usage::
 
-    python scripts/check_intervals.py [--seeds 20] [--work 3e7] [--reference-failures 2000] [--quick]
+    python scripts/check_intervals.py [--seeds 20] [--work 3e7] [--reference-failures 10000] [--quick]
 
 ``--quick`` runs three cases with 6 seeds (about a minute). Prints one line per
 (case, method)::
@@ -58,18 +60,20 @@ CASES = [
 
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--seeds", type=int, default=20)
+    parser.add_argument("--seeds", type=int, help="seeds per case (default: 20, or 6 with --quick)")
     parser.add_argument("--work", type=float, default=3e7, help="counted work per stratified trial")
-    parser.add_argument("--reference-failures", type=int, default=2000)
+    parser.add_argument("--reference-failures", type=int, default=10000,
+                        help="failures of each direct reference run (at most --reference-shots shots)")
+    parser.add_argument("--reference-shots", type=int, default=50_000_000)
     parser.add_argument("--quick", action="store_true")
     args = parser.parse_args()
     cases = CASES[:3] if args.quick else CASES
-    seeds = list(range(1, (6 if args.quick else args.seeds) + 1))
+    seeds = list(range(1, (args.seeds or (6 if args.quick else 20)) + 1))
     print(f"{'case':38s} {'method':13s} {'trials':>6s} {'covered':>7s} {'coverage':>8s} {'median_width':>12s} "
           f"reference (per experiment)")
     for label, noise, distance, device in cases:
         point = _point(noise, distance)
-        ref = direct_reference(point, args.reference_failures, 400_000_000, seed=12345)
+        ref = direct_reference(point, args.reference_failures, args.reference_shots, seed=12345)
         lo, hi = ref.interval
         ref_text = f"{ref.rate:.4g} [{lo:.3g}, {hi:.3g}] ({ref.failures} in {ref.shots:,})"
         rows = {"stratified": stratified_trials(point, seeds, args.work, InProcessExecutor)}

@@ -46,3 +46,15 @@ def test_bench_cluster_refuses_bad_arguments(args: list[str]) -> None:
     done = subprocess.run([sys.executable, str(SCRIPTS / "bench_cluster.py"), *args], capture_output=True, text=True,
                           timeout=60)
     assert done.returncode == 2 and "--shots must be at least" in done.stderr
+
+
+def test_bench_rare_events_prints_a_row_per_distance() -> None:
+    out = run_script("bench_rare_events.py", "--distances", "3,5", "--work", "3e7", "--devices", "improved",
+                     "--direct-seconds", "0.3")
+    assert "ratio_wall" in out and "ratio_cpu" in out
+    assert len([line for line in out.splitlines() if line.startswith("improved ")]) == 2
+
+
+def test_check_intervals_quick_prints_coverage() -> None:
+    out = run_script("check_intervals.py", "--quick", "--seeds", "2", "--work", "1e7", "--reference-failures", "200")
+    assert "coverage" in out and "stratified" in out
