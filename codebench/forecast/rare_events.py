@@ -72,12 +72,13 @@ FloatArray = npt.NDArray[np.float64]
 EMPIRICAL_FAILURES = 20
 #: Largest spread (max / min - 1) of the odds ratios between two models for one f(w) table to serve both.
 REUSE_TOLERANCE = 0.01
-#: Terms of the failure spectrum tried (K).
-MODEL_TERMS = (1, 2, 3)
-#: Onsets tried: (d + 1) / 2 minus these. Matching with unequal edge weights can fail on fewer faults
-#: than half the distance (a few likely faults whose complement is a lighter path), too rarely to be
-#: seen in a scan; the lower onsets let the data decide, and widen the interval when it cannot.
-ONSET_DROPS = (0, 1, 2)
+#: Spectrum variants: (core terms K, bent by a fitted power of w?).
+VARIANTS = ((1, False), (2, False), (1, True))
+#: Exponents c of the bend (w / w_ref)^c tried (profile likelihood).
+TILTS = tuple(float(c) for c in np.arange(-3.0, 3.01, 0.5))
+#: The spectrum is fitted to the lowest strata holding this many failures (at least three strata with
+#: failures): the strata near the rare w it extrapolates to, not the saturated ones far above.
+LOCAL_FAILURES = 300
 #: Bootstrap replicates per model variant.
 BOOTSTRAP = 200
 #: Variants whose AIC is within this of the best enter the interval.
@@ -96,7 +97,7 @@ def chernoff_tail(mean: float, at_least: int) -> float:
     (Chernoff bound, e.g. Mitzenmacher & Upfal, Probability and Computing (2005), Thm 4.4, from memory.)
 
     >>> round(chernoff_tail(1.0, 5), 6)
-    0.008024
+    0.017471
     """
     if at_least <= mean:
         return 1.0
@@ -159,21 +160,62 @@ def odds_spread(base: npt.ArrayLike, other: npt.ArrayLike) -> float:
 # the failure spectrum
 
 
-def _basis(w: npt.NDArray[np.int64], k0: int, terms: int, w_ref: int) -> FloatArray:
-    """C(w, k) / C(w_ref, k) for k = k0 .. k0 + terms - 1 (rows: w)."""
-    lg = np.vectorize(math.lgamma, otypes=[np.float64])
+def log_symmetric(probabilities: npt.ArrayLike, w_max: int) -> FloatArray:
+    """ln e_w(r) for w = 0..w_max (up to a term A + B w), r_i = p_i / (1 - p_i): the elementary symmetric
+    polynomials of the odds.
+
+    e_w(r) is proportional to P(W = w) under any tilt r -> c r (the tilt changes it by c^w), so it is
+    computed as the Poisson-binomial of the tilted probabilities c r_i / (1 + c r_i), with c chosen so
+    that their mean is w_max / 2: every w of interest then stays far from underflow.
+
+    >>> le = log_symmetric([0.1, 0.1, 0.1], 3)
+    >>> [round(float(np.exp(le[w] - le[0])) / 0.1111111111**w, 6) for w in range(4)]
+    [1.0, 3.0, 3.0, 1.0]
+    """
+    p = np.asarray(probabilities, dtype=np.float64)
+    odds = p / (1.0 - p)
+    target = min(max(1.0, w_max / 2.0), 0.5 * odds.size)
+    lo, hi = -60.0, 60.0
+    for _ in range(200):
+        mid = (lo + hi) / 2
+        tilted = np.exp(mid) * odds
+        if float(np.sum(tilted / (1 + tilted))) < target:
+            lo = mid
+        else:
+            hi = mid
+    log_c = (lo + hi) / 2
+    tilted = np.exp(log_c) * odds
+    pmf, _ = poisson_binomial(tilted / (1 + tilted), w_max)
+    return np.asarray(np.log(np.maximum(pmf, 1e-300)) - log_c * np.arange(w_max + 1), dtype=np.float64)
+
+
+def _basis(w: npt.NDArray[np.int64], k0: int, terms: int, w_ref: int, log_e: FloatArray | None) -> FloatArray:
+    """The spectrum's terms for k = k0 .. k0 + terms - 1 (rows: w), each 1 at w_ref.
+
+    With the odds' ln e_w: e_(w-k)(r) / e_w(r), the first-order chance that a given k-set of faults is
+    among w faults drawn from the conditional law (exact for small k-sets; unequal odds make it grow
+    more slowly than C(w, k) once the likely mechanisms are mostly in). Without: C(w, k) (equal odds).
+    """
     out = np.zeros((w.size, terms), dtype=np.float64)
+    lg = np.vectorize(math.lgamma, otypes=[np.float64])
     wf = w.astype(np.float64)
     for j in range(terms):
         k = k0 + j
         ok = w >= k
-        log_c = lg(wf[ok] + 1) - lg(wf[ok] - k + 1) - math.lgamma(k + 1)
-        log_ref = math.lgamma(w_ref + 1) - math.lgamma(w_ref - k + 1) - math.lgamma(k + 1) if w_ref >= k else 0.0
+        if not w_ref >= k:
+            continue
+        if log_e is not None:
+            log_c = log_e[w[ok] - k] - log_e[w[ok]]
+            log_ref = float(log_e[w_ref - k] - log_e[w_ref])
+        else:
+            log_c = lg(wf[ok] + 1) - lg(wf[ok] - k + 1) - math.lgamma(k + 1)
+            log_ref = math.lgamma(w_ref + 1) - math.lgamma(w_ref - k + 1) - math.lgamma(k + 1)
         out[ok, j] = np.exp(log_c - log_ref)
     return out
 
 
-def spectrum(w: npt.ArrayLike, coefficients: npt.ArrayLike, k0: int, w_ref: int, f_max: float) -> FloatArray:
+def spectrum(w: npt.ArrayLike, coefficients: npt.ArrayLike, k0: int, w_ref: int, f_max: float,
+             log_e: FloatArray | None = None, tilt: float = 0.0) -> FloatArray:
     """f(w) of the failure-spectrum model (module docstring).
 
     >>> round(float(spectrum([3], [1.0], 3, 3, 0.5)[0]), 6)
@@ -181,8 +223,13 @@ def spectrum(w: npt.ArrayLike, coefficients: npt.ArrayLike, k0: int, w_ref: int,
     """
     ws = np.asarray(w, dtype=np.int64)
     b = np.asarray(coefficients, dtype=np.float64)
-    hazard = _basis(ws, k0, b.size, w_ref) @ b
+    hazard = (_basis(ws, k0, b.size, w_ref, log_e) * _tilt(ws, w_ref, tilt)[:, None]) @ b
     return np.asarray(f_max * -np.expm1(-hazard), dtype=np.float64)
+
+
+def _tilt(w: npt.NDArray[np.int64], w_ref: int, tilt: float) -> FloatArray:
+    """(w / w_ref)^tilt: a free bend of the spectrum away from the core model (1 when tilt = 0)."""
+    return np.asarray(np.power(np.maximum(w, 1) / float(w_ref), tilt), dtype=np.float64)
 
 
 @dataclass(frozen=True)
@@ -194,17 +241,24 @@ class SpectrumFit:
     w_ref: int
     f_max: float
     log_likelihood: float
+    log_e: FloatArray | None = None
+    tilt: float | None = None
+
+    @property
+    def parameters(self) -> int:
+        return int(self.coefficients.size) + (0 if self.tilt is None else 1)
 
     @property
     def aic(self) -> float:
-        return 2.0 * self.coefficients.size - 2.0 * self.log_likelihood
+        return 2.0 * self.parameters - 2.0 * self.log_likelihood
 
     def __call__(self, w: npt.ArrayLike) -> FloatArray:
-        return spectrum(w, self.coefficients, self.k0, self.w_ref, self.f_max)
+        return spectrum(w, self.coefficients, self.k0, self.w_ref, self.f_max, self.log_e, self.tilt or 0.0)
 
 
 def fit_spectrum(w: npt.ArrayLike, shots: npt.ArrayLike, failures: npt.ArrayLike, k0: int, terms: int,
-                 f_max: float, start: FloatArray | None = None) -> SpectrumFit:
+                 f_max: float, start: FloatArray | None = None, log_e: FloatArray | None = None,
+                 tilt: float | None = None) -> SpectrumFit:
     """Binomial maximum-likelihood fit of the spectrum with ``terms`` coefficients b_k >= 0.
 
     Projected Newton iterations with a backtracking line search (the
@@ -213,7 +267,7 @@ def fit_spectrum(w: npt.ArrayLike, shots: npt.ArrayLike, failures: npt.ArrayLike
     """
     ws = np.asarray(w, dtype=np.int64)
     w_ref = int(ws.max())
-    full = _basis(ws, k0, terms, w_ref)
+    full = _basis(ws, k0, terms, w_ref, log_e) * _tilt(ws, w_ref, tilt or 0.0)[:, None]
     live = full.any(axis=1)  # below the onset f = 0: no information (and no failure, by choice of k0)
     design = full[live]
     n = np.asarray(shots, dtype=np.float64)[live]
@@ -258,7 +312,14 @@ def fit_spectrum(w: npt.ArrayLike, shots: npt.ArrayLike, failures: npt.ArrayLike
         b, value = trial, trial_value
         if change < 1e-9 * max(1.0, abs(value)):
             break
-    return SpectrumFit(b, k0, w_ref, f_max, -value)
+    return SpectrumFit(b, k0, w_ref, f_max, -value, log_e, tilt)
+
+
+def fit_tilted(w: npt.ArrayLike, shots: npt.ArrayLike, failures: npt.ArrayLike, k0: int, f_max: float,
+               log_e: FloatArray | None = None) -> SpectrumFit:
+    """One core term bent by (w / w_ref)^c, c profiled over ``TILTS`` (two parameters)."""
+    fits = [fit_spectrum(w, shots, failures, k0, 1, f_max, log_e=log_e, tilt=c) for c in TILTS]
+    return max(fits, key=lambda f: f.log_likelihood)
 
 
 # ---------------------------------------------------------------------------
@@ -300,12 +361,26 @@ class StratifiedEstimate:
     variants: list[dict[str, Any]] = field(default_factory=list)
 
 
+def _local_strata(ws: npt.NDArray[np.int64], failures: FloatArray) -> npt.NDArray[np.bool_]:
+    """The lowest strata (w ascending) up to LOCAL_FAILURES failures and three strata with failures."""
+    order = np.argsort(ws)
+    chosen = np.zeros(ws.size, dtype=np.bool_)
+    total, with_failures = 0.0, 0
+    for i in order:
+        chosen[i] = True
+        total += failures[i]
+        with_failures += int(failures[i] > 0)
+        if total >= LOCAL_FAILURES and with_failures >= 3:
+            break
+    return chosen
+
+
 def _total(pmf: FloatArray, g: FloatArray) -> float:
     return float(np.dot(pmf, g))
 
 
 def stratified_estimate(pmf: FloatArray, tail: float, strata: Mapping[int, tuple[int, int]], distance: int,
-                        observables: int, seed: int = 0) -> StratifiedEstimate:
+                        observables: int, seed: int = 0, log_e: FloatArray | None = None) -> StratifiedEstimate:
     """P_L = sum_w P(W = w) f(w) from the sampled ``strata`` ``{w: (shots, failures)}``.
 
     ``pmf`` is P(W = w) for w = 0..len(pmf) - 1 and ``tail`` bounds the rest.
@@ -334,8 +409,15 @@ def stratified_estimate(pmf: FloatArray, tail: float, strata: Mapping[int, tuple
 
     if not failing.size:
         raise ValueError("no failures in any stratum: the spectrum cannot be fitted")
-    fits = [fit_spectrum(ws, n, k, onset, terms, f_max)
-            for onset in sorted({max(1, t - drop) for drop in ONSET_DROPS}) for terms in MODEL_TERMS]
+    local = _local_strata(ws, k)
+    lw, ln_, lk = ws[local], n[local], k[local]
+
+    def fit_variant(terms: int, bent: bool, failures: FloatArray, start: FloatArray | None = None) -> SpectrumFit:
+        if bent:
+            return fit_tilted(lw, ln_, failures, t, f_max, log_e=log_e)
+        return fit_spectrum(lw, ln_, failures, t, terms, f_max, start=start, log_e=log_e)
+
+    fits = [fit_variant(terms, bent, lk) for terms, bent in VARIANTS]
     best_aic = min(f.aic for f in fits)
     variants: list[tuple[SpectrumFit, float, float, float, bool]] = []
     for fit in fits:
@@ -347,8 +429,8 @@ def stratified_estimate(pmf: FloatArray, tail: float, strata: Mapping[int, tuple
         for _ in range(BOOTSTRAP):
             prob = np.where(k > 0, k / n, fit(ws))
             k_star = rng.binomial(n.astype(np.int64), np.clip(prob, 0, 1)).astype(np.float64)
-            refit = fit_spectrum(ws, n, k_star, fit.k0, fit.coefficients.size, f_max,
-                                 start=fit.coefficients + 1e-12)
+            refit = fit_variant(int(fit.coefficients.size), fit.tilt is not None, k_star[local],
+                                start=fit.coefficients + 1e-12)
             obs_star = np.zeros(pmf.size)
             for w, i in index.items():
                 if w < pmf.size:
@@ -371,5 +453,6 @@ def stratified_estimate(pmf: FloatArray, tail: float, strata: Mapping[int, tuple
         rate=rate, low=min(low, rate), high=max(high, rate), extrapolated=share > 0.1,
         w_sampled=(int(ws.min()), int(ws.max())), w_dominant=(int(keep.min()), int(keep.max())),
         model_share=share, onset=fit.k0, terms=int(fit.coefficients.size), tail=tail,
-        variants=[{"onset": v[0].k0, "terms": int(v[0].coefficients.size), "aic": v[0].aic, "rate": v[1],
-                   "low": v[2], "high": v[3], "admitted": v[4]} for v in variants])
+        variants=[{"onset": v[0].k0, "terms": int(v[0].coefficients.size), "bend": v[0].tilt, "aic": v[0].aic,
+                   "rate": v[1], "low": v[2], "high": v[3], "admitted": v[4],
+                   "fitted_w": [int(lw.min()), int(lw.max())]} for v in variants])

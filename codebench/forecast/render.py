@@ -223,6 +223,10 @@ def forecast_figure(result: dict[str, Any]) -> Figure:
         err = [[v - r["low"] for v, r in zip(y, sel)], [r["high"] - v for v, r in zip(y, sel)]]
         left.errorbar(x, y, yerr=err, fmt=marker, color=_COLOURS[0], mfc=face or _COLOURS[0], ms=7, capsize=4,
                       label=label, zorder=3)
+    flagged = [r for r in rows if r.get("flags") and r["per_round_rate"] is not None]
+    if flagged:
+        left.plot([r["distance"] for r in flagged], [r["per_round_rate"] for r in flagged], "o", ms=15, mfc="none",
+                  mec=_COLOURS[1], mew=1.2, zorder=4, label="flagged: see the notes / JSON flags")
     bounds = [r for r in rows if r["per_round_rate"] is None and r["high"] is not None]
     if bounds:
         left.plot([r["distance"] for r in bounds], [r["high"] for r in bounds], "v", color=_COLOURS[0],

@@ -42,6 +42,7 @@ from codebench.engine.worker import BatchResult, BatchTask
 from codebench.forecast.rare_events import (
     StratifiedEstimate,
     fit_spectrum,
+    log_symmetric,
     poisson_binomial,
     stratified_estimate,
     upper_bound_without_failures,
@@ -252,7 +253,7 @@ def sample_point(point: Point, seed: int, executor: Executor, share: float, say:
         run.strata = {w: Stratum(w, dict(batches)) for w, batches in saved.batches.items()}
         say(f"d = {point.distance}: reusing the f(w) table of {saved.source or 'an earlier forecast'} "
             f"(odds proportional within {spread:.2%})")
-    pmf, tail = plan_and_sample(run, table.probabilities, point.distance, share, say)
+    pmf, tail, log_e = plan_and_sample(run, table.probabilities, point.distance, share, say)
     if library is not None:
         save_table(library, structure, decoder_params, seed, run.point_key,
                    saved.probabilities if reused is not None else table.probabilities,
@@ -262,7 +263,8 @@ def sample_point(point: Point, seed: int, executor: Executor, share: float, say:
     estimate = None
     upper = None
     if any(k for _, k in counts.values()):
-        estimate = stratified_estimate(pmf, tail, counts, point.distance, table.num_observables, seed=seed)
+        estimate = stratified_estimate(pmf, tail, counts, point.distance, table.num_observables, seed=seed,
+                                       log_e=log_e)
     else:
         upper = upper_bound_without_failures(pmf, tail, counts)
     return PointStrata(counts, pmf, tail, mean, int(table.probabilities.size), table.num_observables,
@@ -271,8 +273,9 @@ def sample_point(point: Point, seed: int, executor: Executor, share: float, say:
 
 
 def plan_and_sample(run: StrataRun, probabilities: np.ndarray, distance: int, share: float,
-                    say: Callable[[str], None]) -> tuple[np.ndarray, float]:
-    """Scan, choose the strata, sample them; returns P(W = w) (w = 0..w_max) and its tail bound."""
+                    say: Callable[[str], None]) -> tuple[np.ndarray, float, np.ndarray]:
+    """Scan, choose the strata, sample them; returns P(W = w) (w = 0..w_max), its tail bound, and
+    ln e_w of the odds (:func:`codebench.forecast.rare_events.log_symmetric`) over the same w."""
     mean = float(probabilities.sum())
     sigma = math.sqrt(float(np.sum(probabilities * (1 - probabilities))))
     onset = (distance + 1) // 2
@@ -290,12 +293,13 @@ def plan_and_sample(run: StrataRun, probabilities: np.ndarray, distance: int, sh
     table = run.table()
     w_max = int(min(n_mech, max(max(table, default=onset), math.ceil(mean + 12 * sigma) + 10)))
     pmf, tail = poisson_binomial(probabilities, w_max)
+    log_e = log_symmetric(probabilities, w_max)
     failing = {w: v for w, v in table.items() if v[1] > 0}
     if not failing or run.stopped():
-        return pmf, tail
+        return pmf, tail, log_e
     ws = np.array(sorted(table), dtype=np.int64)
     fit = fit_spectrum(ws, [table[w][0] for w in ws], [table[w][1] for w in ws],
-                       min(onset, min(failing)), 2, 0.5)
+                       min(onset, min(failing)), 2, 0.5, log_e=log_e)
     all_w = np.arange(w_max + 1)
     f_all = fit(all_w)
     a, b = plan_window(pmf, f_all, fit.k0)
@@ -311,4 +315,4 @@ def plan_and_sample(run: StrataRun, probabilities: np.ndarray, distance: int, sh
     say(f"d = {distance}: {len(strata)} strata w = {strata[0]}..{strata[-1]} (P_L dominated by w = {a}..{b}), "
         f"up to {FAILURE_TARGET} failures or {cap:,} shots each")
     run.run({w: cap for w in strata}, FAILURE_TARGET)
-    return pmf, tail
+    return pmf, tail, log_e
