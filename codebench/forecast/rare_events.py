@@ -138,7 +138,8 @@ def poisson_binomial(probabilities: npt.ArrayLike, w_max: int) -> tuple[FloatArr
     if shift:
         pmf = np.concatenate([np.zeros(shift), pmf])[: w_max + 1]
     mean = float(p.sum())
-    tail = min(max(0.0, 1.0 - float(pmf.sum())), chernoff_tail(mean, w_max + 1))
+    possible = int(np.count_nonzero(p))
+    tail = 0.0 if w_max >= possible else min(max(0.0, 1.0 - float(pmf.sum())), chernoff_tail(mean, w_max + 1))
     return pmf, tail
 
 

@@ -65,8 +65,8 @@ SHAPE_LIMIT = 0.05
 def schedule_prefix(shots: int) -> list[int]:
     """Batch sizes of a stratum's first ``shots`` shots (whole batches, at least one).
 
-    >>> schedule_prefix(7000), schedule_prefix(20000)
-    ([1024, 2048, 4096], [1024, 2048, 4096, 8192, 8192])
+    >>> schedule_prefix(7168), schedule_prefix(20000)
+    ([1024, 2048, 4096], [1024, 2048, 4096, 8192])
     """
     sizes: list[int] = []
     total = 0
@@ -177,7 +177,7 @@ def scan_grid(onset: int, top: int) -> list[int]:
     """w values of the scan: onset, then steps of 25% up to ``top``.
 
     >>> scan_grid(3, 12)
-    [3, 4, 5, 6, 7, 9, 11, 12]
+    [3, 4, 5, 6, 8, 10, 12]
     """
     grid = [onset]
     while grid[-1] < top:
