@@ -116,7 +116,7 @@ def poisson_binomial(probabilities: npt.ArrayLike, w_max: int) -> tuple[FloatArr
     Chernoff bound.
 
     >>> pmf, tail = poisson_binomial([0.5, 0.5], 2)
-    >>> pmf.tolist(), tail
+    >>> [round(v, 12) for v in pmf.tolist()], tail
     ([0.25, 0.5, 0.25], 0.0)
     """
     p = np.asarray(probabilities, dtype=np.float64)
