@@ -435,3 +435,15 @@ def test_hard_time_limit_is_reported(monkeypatch: pytest.MonkeyPatch) -> None:
     assert result["budget"]["hard_limit_reached"]
     assert all(any("cut short" in f for f in r["flags"]) for r in result["distances"])
     assert any("hard time limit" in n for n in result["notes"])
+
+
+def test_near_threshold_targets_are_not_projected_far() -> None:
+    """Lambda = 1.23 [1.18, 1.28] from d <= 7 (the current example device) does not support d = 167 for 1e-9:
+    near threshold Lambda drifts with d (common practice); close targets are still projected."""
+    from codebench.forecast.estimators import targets
+
+    fit = {"lambda": 1.228, "lambda_low": 1.18, "lambda_high": 1.279, "C": 0.0263,
+           "log_cov": [[0.01, 0.004], [0.004, 0.0004]], "consistency_p": 0.33, "chi2": 0.95, "dof": 1}
+    far, near = targets("rotated_surface", fit, [1e-9, 1.5e-2], 7)
+    assert far["distance"] is None and "near threshold" in far["not_projected"]
+    assert near["distance"] is not None and near["distance"] <= 14 and near["not_projected"] is None

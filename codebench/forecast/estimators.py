@@ -43,6 +43,10 @@ EXPONENT_BAND = (0.75, 1.25)
 NEAR_THRESHOLD = 0.2
 #: Chi-square p-value of the Lambda fit below which a constant Lambda is not supported.
 LAMBDA_CONSISTENCY = 0.01
+#: Below this Lambda (its lower end) the device is near threshold, where Lambda drifts with d: targets are
+#: then projected only up to ``NEAR_THRESHOLD_REACH`` times the largest forecast distance.
+NEAR_THRESHOLD_LAMBDA = 1.5
+NEAR_THRESHOLD_REACH = 2
 
 
 @dataclass
@@ -219,6 +223,15 @@ def targets(code: str, fit: dict[str, Any] | None, wanted: Sequence[float], larg
             central, low, high = distances_for_target(
                 allowed, math.log(fit["C"]), math.log(fit["lambda"]), math.log(target),
                 np.asarray(fit["log_cov"], dtype=np.float64), fit["lambda_low"], fit["lambda_high"])
+            if fit["lambda_low"] < NEAR_THRESHOLD_LAMBDA and (central is None
+                                                           or central > NEAR_THRESHOLD_REACH * largest):
+                record["not_projected"] = (
+                    f"near threshold (Lambda {fit['lambda']:.3g} [{fit['lambda_low']:.3g}, {fit['lambda_high']:.3g}] "
+                    f"< {NEAR_THRESHOLD_LAMBDA:g}), Lambda drifts with d, and this target would need d > "
+                    f"{NEAR_THRESHOLD_REACH * largest}: a constant Lambda is not supported that far; forecast "
+                    "larger distances instead")
+                out.append(record)
+                continue
             record.update({
                 "distance": central, "distance_low": low, "distance_high": high,
                 "qubits": None if central is None else family.qubit_count(central),

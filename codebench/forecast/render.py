@@ -115,7 +115,7 @@ def forecast_table(result: dict[str, Any]) -> str:
     rows = [["target", "d", "qubits", "d range (95%)", "qubits range", "note"]]
     for t in result["targets"]:
         if t["distance"] is None:
-            why = "not projected: constant Lambda not supported" if t.get("not_projected") else \
+            why = "not projected: constant Lambda not supported (see notes)" if t.get("not_projected") else \
                 "not reached by growing d"
             rows.append([f"{t['target']:.0e}", "-", "-", "-", "-", why])
             continue
@@ -247,7 +247,9 @@ def forecast_figure(result: dict[str, Any]) -> Figure:
     for i, t in enumerate(result["targets"]):
         left.axhline(t["target"], color="0.55", lw=0.8, ls=":")
         text = f"target {t['target']:.0e}" + (f": d = {t['distance']}, {t['qubits']:,} qubits"
-                                              if t["distance"] is not None else ": not reached")
+                                              if t["distance"] is not None else
+                                              ": not projected (constant Lambda not supported)"
+                                              if t.get("not_projected") else ": not reached")
         left.annotate(text, (d_min, t["target"]), xytext=(2, 2), textcoords="offset points", fontsize=7,
                       color="0.35")
         if t["distance"] is not None and fit is not None:

@@ -333,6 +333,8 @@ def _assemble(context: Context, per_basis: dict[str, list[dict[str, Any]]], devi
     if problem is not None:
         notes.append(f"no target distances: a constant Lambda is not supported ({problem}).")
     target_rows = targets(request.code, fit, request.targets, max(request.distances))
+    for reason in dict.fromkeys(t["not_projected"] for t in target_rows if t["not_projected"] and problem is None):
+        notes.append(f"some targets are not projected: {reason}.")
     if any(t["extrapolation"] for t in target_rows):
         notes.append(f"target distances beyond d = {max(request.distances)} extrapolate the Lambda fit; treat them "
                      "as order-of-magnitude projections.")
