@@ -36,25 +36,25 @@ DEVICE = {"noise": "device", "device": str(IMPROVED), "scale": [1.0]}
 SI1000 = {"noise": "si1000", "p": [0.002]}
 
 
+def _stratified_coverage(noise: dict[str, object], distance: int, seeds: int, work: float, at_least: int) -> None:
+    point = _point(noise, distance)
+    ref = direct_reference(point, 5000, 20_000_000, seed=4242)
+    summary = summarise(stratified_trials(point, list(range(1, seeds + 1)), work, InProcessExecutor), ref.rate)
+    print(f"stratified coverage {summary}")
+    assert summary["covered"] >= at_least, summary
+
+
 @pytest.mark.parametrize("noise, distance", [(DEVICE, 3), (SI1000, 3)], ids=["device d=3", "si1000 d=3"])
 def test_stratified_coverage_few_seeds(noise: dict[str, object], distance: int) -> None:
     """Six seeds, a small budget each: at least 4 of 6 intervals contain the direct reference."""
-    point = _point(noise, distance)
-    ref = direct_reference(point, 1000, 5_000_000, seed=4242)
-    summary = summarise(stratified_trials(point, list(range(1, 7)), 2e7, InProcessExecutor), ref.rate)
-    print(f"stratified coverage {summary}")
-    assert summary["covered"] >= 4, summary
+    _stratified_coverage(noise, distance, 6, 2e7, 4)
 
 
 @pytest.mark.slow
 @pytest.mark.parametrize("noise, distance", [(DEVICE, 5), (SI1000, 5)], ids=["device d=5", "si1000 d=5"])
 def test_stratified_coverage_twenty_seeds(noise: dict[str, object], distance: int) -> None:
     """Twenty seeds: at least 16 of 20 intervals contain the direct reference."""
-    point = _point(noise, distance)
-    ref = direct_reference(point, 2000, 20_000_000, seed=4242)
-    summary = summarise(stratified_trials(point, list(range(1, 21)), 3e7, InProcessExecutor), ref.rate)
-    print(f"stratified coverage {summary}")
-    assert summary["covered"] >= 16, summary
+    _stratified_coverage(noise, distance, 20, 3e7, 16)
 
 
 @pytest.mark.slow

@@ -100,6 +100,18 @@ def forecast_table(result: dict[str, Any]) -> str:
         rows.append([str(r["distance"]), f"{r['qubits']:,}", rate, interval, per_s, method])
     lines += _columns(rows, [True, True, True, False, True, False])
     lines.append("")
+    if result.get("per_basis"):
+        lines.append("Per basis (per-round logical error with 95% interval)")
+        bases = list(result["per_basis"])
+        table = [["d"] + [f"{b} basis" for b in bases]]
+        for i, r in enumerate(result["distances"]):
+            cells = [str(r["distance"])]
+            for b in bases:
+                one = result["per_basis"][b][i]
+                cells.append(f"{_e(one['per_round_rate'])} [{_e(one['low'])}, {_e(one['high'])}] {one['method_kind']}")
+            table.append(cells)
+        lines += _columns(table, [True] + [False] * len(bases))
+        lines.append("")
     if result["lambda"] is not None:
         fit = result["lambda_fit"]
         lines.append(f"Lambda = {result['lambda']:.3f} [{result['lambda_low']:.3f}, {result['lambda_high']:.3f}] "
