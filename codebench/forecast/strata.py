@@ -17,7 +17,11 @@ machine load and any number of workers.
    spectrum's shape). Each stratum runs to ``FAILURE_TARGET`` failures or a
    common shot cap, the largest cap (at most twice the shots the provisional
    f(w) expects for the target) whose expected work (shots x detectors) fits
-   in the distance's share of the budget.
+   in the distance's share of the budget. Strata expected to show fewer than
+   ``MIN_EXPECTED`` failures at that cap are dropped from the bottom (the
+   cap grows as they go) except the highest of them, which bounds f just
+   below the measured range: the budget goes to the lowest w that can be
+   measured, and the rarer ones keep their scan counts.
 
 Every stratum's batches follow one fixed schedule (1,024, 2,048, 4,096, then
 8,192 shots) with seeds from (seed, point, w, batch index), and a stratum's
@@ -60,6 +64,8 @@ BATCH_SCHEDULE = (1024, 2048, 4096)
 STEADY_BATCH = 8192
 #: Spectrum fraction up to which strata above the dominant window are kept.
 SHAPE_LIMIT = 0.05
+#: Failures a stratum must be expected to show at the common cap to be sampled beyond the scan.
+MIN_EXPECTED = 5
 
 
 def schedule_prefix(shots: int) -> list[int]:
@@ -310,8 +316,18 @@ def plan_and_sample(run: StrataRun, probabilities: np.ndarray, distance: int, sh
     above = [w for w in table if w > b and fit(np.array([w]))[0] <= max(SHAPE_LIMIT, float(f_all[b]))]
     strata = sorted(set(window) | set(above))
     # Twice the expected shots: the failure target, not the cap, should usually end a stratum.
-    expected = {w: 2 * FAILURE_TARGET / max(float(fit(np.array([w]))[0]), 1e-300) for w in strata}
-    cap = water_fill(expected, run.detectors, max(0.0, share - run.work_done))
+    f_of = {w: max(float(fit(np.array([w]))[0]), 1e-300) for w in strata}
+    left = max(0.0, share - run.work_done)
+    cap = water_fill({w: 2 * FAILURE_TARGET / f_of[w] for w in strata}, run.detectors, left)
+    # Strata too rare to show MIN_EXPECTED failures at the cap add little but zeros: drop them from the
+    # bottom, so the budget goes to the lowest strata that can be measured (the spectrum's fit then
+    # extrapolates from as close to the rare w as the budget allows).
+    dropped: list[int] = []
+    while len(strata) > 1 and f_of[strata[0]] * cap < MIN_EXPECTED:
+        dropped.append(strata.pop(0))
+        cap = water_fill({w: 2 * FAILURE_TARGET / f_of[w] for w in strata + dropped[-1:]}, run.detectors, left)
+    # The highest dropped stratum stays: its count (few or no failures) bounds f just below the measured w.
+    strata = sorted(strata + dropped[-1:])
     say(f"d = {distance}: {len(strata)} strata w = {strata[0]}..{strata[-1]} (P_L dominated by w = {a}..{b}), "
         f"up to {FAILURE_TARGET} failures or {cap:,} shots each")
     run.run({w: cap for w in strata}, FAILURE_TARGET)
