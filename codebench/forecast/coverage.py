@@ -56,12 +56,12 @@ class Trial:
         return self.low is not None and self.high is not None and self.low <= truth <= self.high
 
 
-def direct_reference(point: Point, failures: int, max_shots: int, seed: int) -> Reference:
-    """Sample the point's circuit until ``failures`` failures or ``max_shots`` shots (in-process)."""
+def direct_reference(point: Point, failures: int, shot_limit: int, seed: int) -> Reference:
+    """Sample the point's circuit until ``failures`` failures or ``shot_limit`` shots (in-process)."""
     compiled = compile_point(point.params())
     sampler = compiled.circuit.compile_detector_sampler(seed=seed)
     shots = found = 0
-    while found < failures and shots < max_shots:
+    while found < failures and shots < shot_limit:
         dets, obs = sampler.sample(CHUNK, separate_observables=True, bit_packed=True)
         found += count_failures(compiled.decoder.decode_batch(dets, bit_packed=True), obs)
         shots += CHUNK
