@@ -60,7 +60,7 @@ from codebench.forecast.estimators import (
 from codebench.forecast.extrapolation import sample_raised, scale_cap
 from codebench.forecast.plan import WorkBudget
 from codebench.forecast.request import DEFAULT_DISTANCES, DEFAULT_SEED, DEFAULT_TARGETS, ForecastRequest, parse_bases
-from codebench.forecast.sampling import Sampler, SharedPool
+from codebench.forecast.sampling import Sample, Sampler, SharedPool
 from codebench.forecast.whatif import improve_device
 from codebench.noise.calibration import Device, load_device
 from codebench.noise.device import DeviceNoise
@@ -223,7 +223,7 @@ def _forecast_basis(context: Context, basis: Basis, index: int) -> list[dict[str
     return rows
 
 
-def _choose(forced: str, pilot: Any, share: float) -> tuple[str, str]:
+def _choose(forced: str, pilot: Sample, share: float) -> tuple[str, str]:
     """The method for one distance, and why."""
     if forced != "auto":
         return forced, f"{forced} forced"
@@ -260,7 +260,7 @@ def _stratified(context: Context, sampler: Sampler, distance: int, share: float)
     return row
 
 
-def _cut_short(distance: int, pilot: Any, context: Context) -> dict[str, Any]:
+def _cut_short(distance: int, pilot: Sample | None, context: Context) -> dict[str, Any]:
     estimate = direct_estimate(pilot) if pilot is not None else Estimate("not sampled", "direct", None, None, None,
                                                                          0, 0)
     row = estimate.row(distance)

@@ -127,7 +127,6 @@ class StrataRun:
     stopped: Callable[[], bool]
     detectors: int
     strata: dict[int, Stratum] = field(default_factory=dict)
-    work_done: float = 0.0
 
     def run(self, plan: dict[int, int], target: int | None) -> None:
         """Sample every stratum w of ``plan`` up to ``plan[w]`` shots, stopping early at ``target`` failures."""
@@ -162,7 +161,6 @@ class StrataRun:
                 w, index = result.batch_index >> STRATUM_SHIFT, result.batch_index & ((1 << STRATUM_SHIFT) - 1)
                 in_flight.discard((w, index))
                 self.strata[w].batches[index] = result
-                self.work_done += result.shots * self.detectors
         for w, sizes in schedules.items():
             self.strata[w].used = self.strata[w].prefix(sizes, limit)[0]
 
@@ -175,8 +173,10 @@ class StrataRun:
                 out[w] = (shots, failures)
         return out
 
-    def seconds(self) -> float:
-        return sum(stratum.totals()[2] for stratum in self.strata.values())
+    def counted_work(self) -> float:
+        """Shots x detectors of the counted batches: what the budget is charged (batches that finished past
+        a stratum's target are not counted, so the charge never depends on timing)."""
+        return float(sum(n for n, _ in self.table().values())) * self.detectors
 
 
 def scan_grid(onset: int, top: int) -> list[int]:
@@ -274,7 +274,7 @@ def sample_point(point: Point, seed: int, executor: Executor, share: float, say:
     else:
         upper = upper_bound_without_failures(pmf, tail, counts)
     return PointStrata(counts, pmf, tail, mean, int(table.probabilities.size), table.num_observables,
-                       run.work_done, estimate, upper, None if reused is None else (reused[0].source or "earlier"),
+                       run.counted_work(), estimate, upper, None if reused is None else (reused[0].source or "earlier"),
                        None if reused is None else reused[1])
 
 
@@ -317,7 +317,7 @@ def plan_and_sample(run: StrataRun, probabilities: np.ndarray, distance: int, sh
     strata = sorted(set(window) | set(above))
     # Twice the expected shots: the failure target, not the cap, should usually end a stratum.
     f_of = {w: max(float(fit(np.array([w]))[0]), 1e-300) for w in strata}
-    left = max(0.0, share - run.work_done)
+    left = max(0.0, share - run.counted_work())
     cap = water_fill({w: 2 * FAILURE_TARGET / f_of[w] for w in strata}, run.detectors, left)
     # Strata too rare to show MIN_EXPECTED failures at the cap add little but zeros: drop them from the
     # bottom, so the budget goes to the lowest strata that can be measured (the spectrum's fit then

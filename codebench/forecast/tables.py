@@ -16,7 +16,8 @@ weights (new batches use the new weights).
 A table is a JSON file ``strata/<structure>-<setting>-<seed key>.json`` with
 the odds beside it as ``.npy``; its batches are identified by the seed key of
 the point that first drew them, so reusing them and topping them up stays a
-deterministic function of the inputs.
+deterministic function of the inputs. Reused batches count towards the
+distance's share of the budget like new ones (the budget buys evidence).
 """
 
 from __future__ import annotations
