@@ -277,7 +277,7 @@ def forecast_figure(result: dict[str, Any]) -> Figure:
     left.set_title(f"{result['device']}: {result['code']} ({result['basis']}), {result['decoder']}; "
                    f"round {result['round_duration_us']:.3g} us", fontsize=9)
     left.grid(True, which="major", alpha=0.3)
-    left.legend(fontsize=7, loc="upper right")
+    left.legend(fontsize=7, loc="best")  # the least-covered corner: markers stay visible
 
     if right is not None:
         _side_panel(right, side)
