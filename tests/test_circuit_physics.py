@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import dataclasses
 import itertools
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -541,3 +542,61 @@ def test_layers_are_separated_by_tick(code: str, d: int) -> None:
     # layer per gate step, measure; then the final data readout.
     steps = get_code_family(code).layout(d, "Z").num_steps
     assert len(ideal.layers) == 2 * (steps + 2) + 1
+
+
+# --- text rendering equals instruction-by-instruction construction -----------------------------
+
+
+def _render_by_append(ideal, noise) -> stim.Circuit:  # type: ignore[no-untyped-def]
+    """The reference: every instruction added with stim.Circuit.append (stim's own API, no text)."""
+    out = stim.Circuit()
+    for q in ideal.qubits:
+        out.append("QUBIT_COORDS", [q], list(ideal.layout.coords[q]))
+    by_layer: dict[int, list] = {}  # type: ignore[type-arg]
+    for det in ideal.detectors:
+        by_layer.setdefault(det.after_layer, []).append(det)
+    measured = 0
+    for i, layer in enumerate(ideal.layers):
+        if i:
+            out.append("TICK")
+        before, after = noise(layer, ideal)
+        for name, targets, args in before:
+            if targets:
+                out.append(name, list(targets), list(args))
+        for op in layer.ops:
+            out.append(op.gate, list(op.targets))
+            if layer.kind == "measure":
+                measured += len(op.targets)
+        for name, targets, args in after:
+            if targets:
+                out.append(name, list(targets), list(args))
+        for det in by_layer.get(i, []):
+            out.append("DETECTOR", [stim.target_rec(r - measured) for r in det.records], list(det.coords))
+    out.append("OBSERVABLE_INCLUDE", [stim.target_rec(r - measured) for r in ideal.observable], [0])
+    return out
+
+
+DEVICE_FILE = Path(__file__).resolve().parents[1] / "configs" / "devices" / "larkspur_current.toml"
+
+
+@pytest.mark.parametrize("code,d", [("repetition", 3), ("rotated_surface", 3), ("rotated_surface", 5), ("heavy_hex", 3)])
+@pytest.mark.parametrize("basis", BASES)
+@pytest.mark.parametrize("noise,options", MODEL_VARIANTS + [("device", {})],
+                         ids=[f"{n}-{o.get('data_errors', '')}" for n, o in MODEL_VARIANTS] + ["device"])
+def test_text_rendering_equals_append(code: str, d: int, basis: str, noise: str, options: dict[str, str]) -> None:
+    """render() writes text and parses it once; the circuit must equal the append-built one exactly
+    (same instructions, arguments and targets), so counts for a seed do not change (common practice:
+    stim's append and its text parser build the same circuit)."""
+    from codebench.circuits import render
+    from codebench.noise.calibration import load_device
+
+    family = get_code_family(code)
+    if basis not in family.bases:
+        pytest.skip(f"{code} has no {basis} memory")
+    if noise == "device":
+        options = {"device": load_device(DEVICE_FILE).canonical_json()}
+    model = get_noise_model(noise)(0.75 if noise == "device" else 0.0123456789, **options)
+    ideal = family.ideal_circuit(d, d, basis, model.circuit_gate_set())  # type: ignore[arg-type]
+    decorated = model.decorate(ideal)  # (a device model maps the code's qubits here)
+    assert decorated == _render_by_append(ideal, model.layer_noise)
+    assert render(ideal, model.layer_noise) == decorated
