@@ -469,7 +469,7 @@ def test_forecast_reports_decoder_speed() -> None:
     from codebench.forecast import forecast
     from codebench.forecast.render import CSV_COLUMNS, forecast_table
 
-    result = forecast(REPO / "configs" / "devices" / "larkspur_current.toml", distances=(3, 5), budget_seconds=6,
+    result = forecast(REPO / "configs" / "devices" / "larkspur_current.toml", distances=(3, 5), work=9e8,
                       workers=1)
     for row in result["distances"]:
         assert row["decode_us_per_round"] > 0
