@@ -13,7 +13,8 @@ from typing import TYPE_CHECKING, Any
 if TYPE_CHECKING:
     import pandas as pd
 
-from codebench.api import export_csv, load_results, run_sweep
+    from codebench.api import export_csv, load_results, run_sweep
+
 from codebench.errors import CodebenchError, ConfigError, DecoderError, DeviceFileError, StoreError
 
 __version__ = "0.1.0"
@@ -24,6 +25,16 @@ def analyze(frame: pd.DataFrame, **options: Any) -> dict[str, Any]:
     from codebench.analysis import analyze as _analyze
 
     return _analyze(frame, **options)
+
+
+def __getattr__(name: str) -> Any:
+    """``run_sweep``, ``load_results`` and ``export_csv`` load the engine (and pandas) on first use, so
+    ``import codebench``, the command line's start and worker processes stay cheap."""
+    if name in ("export_csv", "load_results", "run_sweep"):
+        from codebench import api
+
+        return getattr(api, name)
+    raise AttributeError(f"module 'codebench' has no attribute {name!r}")
 
 
 __all__ = [

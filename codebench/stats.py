@@ -10,9 +10,16 @@ Stat. Sci. 16, 101 (2001) for their coverage.
 from __future__ import annotations
 
 import math
-from typing import Callable, Literal
+from typing import Any, Callable, Literal
 
-from scipy import stats as _st
+
+def _scipy_stats() -> Any:
+    """scipy.stats, imported on first use: it costs about half a second, and workers and most
+    commands never need it (the Wilson interval is closed-form)."""
+    from scipy import stats
+
+    return stats
+
 
 IntervalMethod = Literal["wilson", "jeffreys", "clopper_pearson"]
 
@@ -27,7 +34,7 @@ def wilson_interval(k: int, n: int, confidence: float = 0.95) -> tuple[float, fl
     """
     if n <= 0:
         return 0.0, 1.0
-    z = Z95 if confidence == 0.95 else float(_st.norm.ppf(0.5 + confidence / 2))
+    z = Z95 if confidence == 0.95 else float(_scipy_stats().norm.ppf(0.5 + confidence / 2))
     phat = k / n
     denom = 1 + z * z / n
     centre = (phat + z * z / (2 * n)) / denom
@@ -50,8 +57,9 @@ def jeffreys_interval(k: int, n: int, confidence: float = 0.95) -> tuple[float, 
     if n <= 0:
         return 0.0, 1.0
     alpha = 1 - confidence
-    low = 0.0 if k == 0 else float(_st.beta.ppf(alpha / 2, k + 0.5, n - k + 0.5))
-    high = 1.0 if k == n else float(_st.beta.ppf(1 - alpha / 2, k + 0.5, n - k + 0.5))
+    beta = _scipy_stats().beta
+    low = 0.0 if k == 0 else float(beta.ppf(alpha / 2, k + 0.5, n - k + 0.5))
+    high = 1.0 if k == n else float(beta.ppf(1 - alpha / 2, k + 0.5, n - k + 0.5))
     return low, high
 
 
@@ -64,8 +72,9 @@ def clopper_pearson_interval(k: int, n: int, confidence: float = 0.95) -> tuple[
     if n <= 0:
         return 0.0, 1.0
     alpha = 1 - confidence
-    low = 0.0 if k == 0 else float(_st.beta.ppf(alpha / 2, k, n - k + 1))
-    high = 1.0 if k == n else float(_st.beta.ppf(1 - alpha / 2, k + 1, n - k))
+    beta = _scipy_stats().beta
+    low = 0.0 if k == 0 else float(beta.ppf(alpha / 2, k, n - k + 1))
+    high = 1.0 if k == n else float(beta.ppf(1 - alpha / 2, k + 1, n - k))
     return low, high
 
 

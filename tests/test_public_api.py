@@ -20,3 +20,15 @@ def test_registered_names_match_the_design() -> None:
     assert {"repetition", "rotated_surface"} <= set(CODE_FAMILIES)
     assert {"code_capacity", "phenomenological", "circuit_depolarizing", "si1000"} <= set(NOISE_MODELS)
     assert {"mwpm", "mwpm_correlated"} <= set(DECODERS)
+
+
+def test_lean_start_up() -> None:
+    """The command line and `import codebench` load no heavy library: scipy.stats, ldpc, pandas and
+    matplotlib come in only where a command uses them (issue requirement: a cheap `codebench --help`)."""
+    import subprocess
+    import sys
+
+    probe = ("import sys, codebench, codebench.cli; "
+             "print(','.join(m for m in ('scipy.stats', 'ldpc', 'pandas', 'matplotlib') if m in sys.modules))")
+    done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, timeout=120, check=True)
+    assert done.stdout.strip() == ""

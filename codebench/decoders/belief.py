@@ -39,8 +39,6 @@ from typing import Any, ClassVar
 import numpy as np
 import scipy.sparse as sp
 import stim
-from ldpc.bplsd_decoder import BpLsdDecoder
-from ldpc.bposd_decoder import BpOsdDecoder
 
 from codebench.decoders.base import Decoder, OptionSpec
 from codebench.errors import not_allowed
@@ -267,6 +265,8 @@ class BeliefOSD(BeliefDecoder):
     _method_key, _order_key, _orderless, _exhaustive = "osd_method", "osd_order", "osd0", "osd_e"
 
     def _build(self, matrices: CheckMatrices) -> Any:
+        from ldpc.bposd_decoder import BpOsdDecoder  # ldpc (and what it imports) only when used
+
         return BpOsdDecoder(
             matrices.check, **self._bp_arguments(matrices),
             osd_method=str(self.options["osd_method"]), osd_order=int(self.options["osd_order"]),
@@ -294,6 +294,8 @@ class BeliefLSD(BeliefDecoder):
     _method_key, _order_key, _orderless, _exhaustive = "lsd_method", "lsd_order", "lsd0", "lsd_e"
 
     def _build(self, matrices: CheckMatrices) -> Any:
+        from ldpc.bplsd_decoder import BpLsdDecoder
+
         return BpLsdDecoder(
             matrices.check, **self._bp_arguments(matrices),
             lsd_method=str(self.options["lsd_method"]), lsd_order=int(self.options["lsd_order"]),
