@@ -58,3 +58,9 @@ def test_bench_rare_events_prints_a_row_per_distance() -> None:
 def test_check_intervals_quick_prints_coverage() -> None:
     out = run_script("check_intervals.py", "--quick", "--seeds", "2", "--work", "1e7", "--reference-failures", "200")
     assert "coverage" in out and "stratified" in out
+
+
+def test_bench_overhead_prints_every_case() -> None:
+    out = run_script("bench_overhead.py", "--shots", "3000", "--small-shots", "300", "--cases", "small,d3")
+    assert "bare/eng1 wall" in out
+    assert [line.split()[0] for line in out.splitlines()[1:]] == ["small", "d3"]

@@ -1,0 +1,154 @@
+"""Engine overhead: ``codebench.run_sweep`` against a bare stim + pymatching loop on the same circuits.
+
+Cases:
+
+(a) 60 small points: repetition code, d = 3, 5, 7, rounds = d, circuit_depolarizing at 20 rates
+    from 1e-3 to 1e-1, ``--small-shots`` shots each;
+(b) rotated surface code, SI1000 p = 1e-3, d = 3, 7, 11, rounds = d, ``--shots`` shots each.
+
+The bare loop builds the same noisy circuit (``Point.circuit``), its detector error model and a
+``pymatching.Matching``, then samples bit-packed chunks and decodes them, all in this process. The
+engine runs the same points through ``run_sweep`` (a fresh results folder each time, no failure
+target, so both draw the same number of shots) with 1 and with 2 workers. Wall time and CPU time
+(this process plus its worker processes, read with psutil every 0.1 s) are measured side by side in
+one run, after a discarded warm-up of each. Printed per case::
+
+    case  bare_wall  bare_cpu  engine1_wall  engine1_cpu  engine2_wall  engine2_cpu
+          ratio_1w_wall ratio_1w_cpu (bare / engine with 1 worker)  ratio_2v1_wall (engine 1 / engine 2)
+
+Goals (a throughput ratio, higher is better): bare / engine >= 0.9 with 1 worker, and engine with
+2 workers >= 1.8 x engine with 1 worker at d = 7 and 11.
+
+Usage::
+
+    python scripts/bench_overhead.py [--shots 100000] [--small-shots 2000] [--cases small,d3,d7,d11]
+
+(psutil comes with the test extra: ``pip install -e '.[test]'``.)
+"""
+
+from __future__ import annotations
+
+import argparse
+import tempfile
+import threading
+import time
+from typing import Any, Callable
+
+import numpy as np
+import psutil
+import pymatching
+
+from codebench.api import run_sweep
+from codebench.config import parse_sweep
+from codebench.engine.points import Point
+
+
+class CpuMeter:
+    """CPU seconds of this process and its descendants, polled so that exiting workers still count."""
+
+    def __init__(self) -> None:
+        self.seen: dict[int, float] = {}
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._poll, daemon=True)
+
+    def _poll(self) -> None:
+        me = psutil.Process()
+        while not self._stop.is_set():
+            for proc in [me, *me.children(recursive=True)]:
+                try:
+                    times = proc.cpu_times()
+                except psutil.Error:
+                    continue
+                self.seen[proc.pid] = max(self.seen.get(proc.pid, 0.0), times.user + times.system)
+            self._stop.wait(0.1)
+
+    def __enter__(self) -> CpuMeter:
+        self.start = {p: t for p, t in self._snapshot().items()}
+        self._thread.start()
+        return self
+
+    def _snapshot(self) -> dict[int, float]:
+        me = psutil.Process()
+        out = {}
+        for proc in [me, *me.children(recursive=True)]:
+            try:
+                times = proc.cpu_times()
+            except psutil.Error:
+                continue
+            out[proc.pid] = times.user + times.system
+        return out
+
+    def __exit__(self, *exc: object) -> None:
+        self._stop.set()
+        self._thread.join()
+        for pid, value in self._snapshot().items():
+            self.seen[pid] = max(self.seen.get(pid, 0.0), value)
+        self.cpu = sum(v - self.start.get(pid, 0.0) for pid, v in self.seen.items())
+
+
+def measure(work: Callable[[], Any]) -> tuple[float, float]:
+    """(wall seconds, CPU seconds) of ``work()``."""
+    with CpuMeter() as meter:
+        start = time.perf_counter()
+        work()
+        wall = time.perf_counter() - start
+    return wall, meter.cpu
+
+
+def studies(case: str) -> list[dict[str, Any]]:
+    if case == "small":
+        rates = [float(p) for p in np.geomspace(1e-3, 1e-1, 20)]
+        return [{"code": "repetition", "distances": [3, 5, 7], "rounds": "d", "basis": ["Z"],
+                 "noise": "circuit_depolarizing", "p": rates, "decoders": ["mwpm"]}]
+    d = int(case[1:])
+    return [{"code": "rotated_surface", "distances": [d], "rounds": "d", "basis": ["Z"], "noise": "si1000",
+             "p": [1e-3], "decoders": ["mwpm"]}]
+
+
+def bare(points: list[Point], shots: int) -> int:
+    """The minimal loop: circuit, detector error model, matching, bit-packed sampling and decoding."""
+    failures = 0
+    for point in points:
+        circuit = point.circuit()
+        matching = pymatching.Matching.from_detector_error_model(circuit.detector_error_model(decompose_errors=True))
+        sampler = circuit.compile_detector_sampler(seed=1)
+        left = shots
+        while left > 0:
+            chunk = min(left, 16384)
+            dets, obs = sampler.sample(chunk, separate_observables=True, bit_packed=True)
+            predicted = matching.decode_batch(dets, bit_packed_shots=True, bit_packed_predictions=True)
+            failures += int(np.count_nonzero(np.any(predicted != obs, axis=1)))
+            left -= chunk
+    return failures
+
+
+def engine(case: str, shots: int, workers: int) -> None:
+    config = {"name": f"overhead-{case}", "seed": 1, "stopping": {"failure_target": 10**9, "shot_budget": shots},
+              "study": studies(case)}
+    with tempfile.TemporaryDirectory() as folder:
+        run_sweep(config, out=folder, workers=workers, progress=False)
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--shots", type=int, default=100_000)
+    parser.add_argument("--small-shots", type=int, default=2_000)
+    parser.add_argument("--cases", default="small,d3,d7,d11")
+    args = parser.parse_args()
+    print(f"{'case':6s} {'bare_wall':>9s} {'bare_cpu':>8s} {'eng1_wall':>9s} {'eng1_cpu':>8s} {'eng2_wall':>9s} "
+          f"{'eng2_cpu':>8s} {'bare/eng1 wall':>14s} {'bare/eng1 cpu':>13s} {'eng2 vs eng1 wall':>17s}")
+    for case in args.cases.split(","):
+        shots = args.small_shots if case == "small" else args.shots
+        points = parse_sweep({"name": "b", "seed": 1, "study": studies(case)}, source="bench").points
+        bare(points[:1], 1000)  # warm-up, discarded
+        engine(case, min(shots, 2048), 1)
+        b_wall, b_cpu = measure(lambda: bare(points, shots))
+        e1_wall, e1_cpu = measure(lambda: engine(case, shots, 1))
+        e2_wall, e2_cpu = measure(lambda: engine(case, shots, 2))
+        print(f"{case:6s} {b_wall:8.2f}s {b_cpu:7.2f}s {e1_wall:8.2f}s {e1_cpu:7.2f}s {e2_wall:8.2f}s {e2_cpu:7.2f}s "
+              f"{b_wall / e1_wall:14.2f} {b_cpu / e1_cpu:13.2f} {e1_wall / e2_wall:17.2f}", flush=True)
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
