@@ -158,14 +158,14 @@ def _improvement(text: str) -> tuple[str, float]:
         raise argparse.ArgumentTypeError(str(exc)) from None
 
 
-def _positive_number(flag: str, what: str) -> Callable[[str], float]:
-    """An argparse type: a positive finite number, else the one-line message for ``flag``."""
+def _positive_number(flag: str, what: str, largest: float) -> Callable[[str], float]:
+    """An argparse type: a positive number up to ``largest``, else the one-line message for ``flag``."""
     def parse(text: str) -> float:
         try:
             value = float(text)
         except ValueError:
             value = float("nan")
-        if not value > 0 or value == float("inf"):
+        if not 0 < value <= largest:
             raise argparse.ArgumentTypeError(not_allowed(flag, text, what))
         return value
 
@@ -261,11 +261,11 @@ def build_parser() -> argparse.ArgumentParser:
     fc.add_argument("--target", type=_rates, action="append",
                     help="target per-round rate; repeatable or comma-separated (default: 1e-6,1e-9,1e-12)")
     fc.add_argument("--budget-seconds", default=60.0,
-                    type=_positive_number("--budget-seconds", "a positive number of seconds"),
+                    type=_positive_number("--budget-seconds", "a positive number of seconds up to 1e+06", 1e6),
                     help="budget, turned into counted work at a fixed rate; sampling stops at 3x this "
                          "whatever the plan (default: 60)")
     fc.add_argument("--work", type=_positive_number("--work", "a positive amount of counted work "
-                                                    "(shots x detectors, e.g. 5e9)"),
+                                                    "(shots x detectors, e.g. 5e9) up to 1e+14", 1e14),
                     help="budget as counted work (shots x detectors) instead: no time limit, the same plan "
                          "on any machine")
     fc.add_argument("--improve", type=_improvement, action="append", metavar="PARAM=FACTOR",

@@ -315,6 +315,8 @@ def test_bench_goal_current_device() -> None:
     ["--method", "guess"],
     ["--work", "0"],
     ["--work", "lots"],
+    ["--work", "1e30"],
+    ["--budget-seconds", "1e9"],
     ["--basis", "Z,Z"],
 ])
 def test_cli_bad_input_exits_2_with_one_line(extra: list[str], capsys: pytest.CaptureFixture[str]) -> None:

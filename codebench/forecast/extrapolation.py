@@ -37,6 +37,8 @@ FIT_SCALES = 4                   # consecutive grid points: spread 2^(3/2)
 MIN_RAISED_STEP = 2              # the lowest raised scale is s = 2
 MIN_FAILURES = 100
 FAILURES = 400
+#: Most shots one raised scale takes, whatever the budget.
+MAX_SCALE_SHOTS = 1_000_000_000
 
 
 def grid_scale(step: int) -> float:
@@ -87,7 +89,7 @@ def _shot_cap(rates: list[float], detectors: int, share: float) -> int:
     def spend(limit: float) -> float:
         return detectors * (limit + sum(min(limit, FAILURES / p) for p in rates[1:]))
 
-    lo, hi = float(FIRST_BATCH), 2.0 * FAILURES / rates[0]
+    lo, hi = float(FIRST_BATCH), min(2.0 * FAILURES / rates[0], float(MAX_SCALE_SHOTS))
     if spend(hi) <= share:
         return int(hi)
     for _ in range(60):
@@ -124,7 +126,7 @@ def sample_raised(sampler: Sampler, distance: int, share: float, s_cap: float, d
             break
     if chosen is None:
         scales = [grid_scale(MIN_RAISED_STEP + i) for i in range(FIT_SCALES) if grid_scale(MIN_RAISED_STEP + i) <= s_cap]
-        chosen = (scales, max(FIRST_BATCH, int(share / max(1, detectors * len(scales)))))
+        chosen = (scales, max(FIRST_BATCH, min(MAX_SCALE_SHOTS, int(share / max(1, detectors * len(scales))))))
     scales, shots = chosen
     sampler.say(f"d = {distance}: raised noise at scales {', '.join(f'{s:g}' for s in scales)}, "
                 f"up to {FAILURES} failures or {shots:,} shots each")

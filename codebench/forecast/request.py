@@ -19,6 +19,10 @@ from codebench.noise.calibration import Device
 
 __all__ = ["DEFAULT_DISTANCES", "DEFAULT_SEED", "DEFAULT_TARGETS", "METHODS", "ForecastRequest", "parse_bases"]
 
+#: Largest budgets taken: about a week of a 2-core machine at the reference rate. Larger ones would only
+#: build absurd shot plans (and a mistyped exponent should not take the machine's memory).
+MAX_WORK = 1e14
+MAX_SECONDS = 1e6
 DEFAULT_DISTANCES = (3, 5, 7)
 DEFAULT_TARGETS = (1e-6, 1e-9, 1e-12)
 DEFAULT_SEED = 20260101
@@ -101,9 +105,11 @@ class ForecastRequest:
         for t in self.targets:
             if isinstance(t, bool) or not isinstance(t, (int, float)) or not 0 < t < 0.5:
                 raise ConfigError(not_allowed("--target", t, "a per-round rate in (0, 0.5)"))
-        _positive("--budget-seconds", self.budget_seconds, "a positive number of seconds")
+        _positive("--budget-seconds", self.budget_seconds, f"a positive number of seconds up to {MAX_SECONDS:g}",
+                  MAX_SECONDS)
         if self.work is not None:
-            _positive("work", self.work, "a positive amount of counted work (shots x detectors)")
+            _positive("--work", self.work, f"a positive amount of counted work (shots x detectors) up to {MAX_WORK:g}",
+                      MAX_WORK)
         if self.workers is not None and (isinstance(self.workers, bool) or not isinstance(self.workers, int)
                                          or self.workers < 1):
             raise ConfigError(not_allowed("--workers", self.workers, "a positive integer"))
@@ -118,6 +124,7 @@ class ForecastRequest:
                                   "targets": tuple(float(t) for t in self.targets), "improve": dict(self.improve)})
 
 
-def _positive(name: str, value: object, what: str) -> None:
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value <= 0:
+def _positive(name: str, value: object, what: str, largest: float) -> None:
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value <= 0 \
+            or value > largest:
         raise ConfigError(not_allowed(name, value, what))

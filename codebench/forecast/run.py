@@ -83,6 +83,8 @@ PILOT_SHOTS = 7168               # 1024 + 2048 + 4096: a prefix of the batch sch
 PILOT_FAILURES = 10
 DIRECT_MIN_FAILURES = 100
 DIRECT_FAILURES = 1000
+#: Most shots a direct point takes, whatever the budget (the engine lists a point's batches up front).
+MAX_DIRECT_SHOTS = 1_000_000_000
 
 
 @dataclass
@@ -208,7 +210,7 @@ def _forecast_basis(context: Context, basis: Basis, index: int) -> list[dict[str
             continue
         method, reason = _choose(request.method_of(d), one, share)
         if method == "direct":
-            shots = max(one.shots, int(share / max(1, detectors)) + one.shots)
+            shots = min(MAX_DIRECT_SHOTS, max(one.shots, int(share / max(1, detectors)) + one.shots))
             sampler.say(f"d = {d}: direct sampling, up to {DIRECT_FAILURES} failures or {shots:,} shots")
             sampler.run(f"d{d}-direct", {d: [1.0]}, DIRECT_FAILURES, shots)
             estimate = direct_estimate(sampler.samples[(d, 1.0)])

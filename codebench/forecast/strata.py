@@ -66,6 +66,8 @@ STEADY_BATCH = 8192
 SHAPE_LIMIT = 0.05
 #: Failures a stratum must be expected to show at the common cap to be sampled beyond the scan.
 MIN_EXPECTED = 5
+#: Most shots one stratum takes, whatever the budget (its batch bookkeeping stays small).
+MAX_STRATUM_SHOTS = 20_000_000
 
 
 def schedule_prefix(shots: int) -> list[int]:
@@ -209,7 +211,8 @@ def water_fill(expected: dict[int, float], work_per_shot: float, share: float) -
     def spend(cap: float) -> float:
         return sum(min(e, cap) for e in expected.values()) * work_per_shot
 
-    lo, hi = float(SCAN_SHOTS), max(float(SCAN_SHOTS), max(expected.values(), default=SCAN_SHOTS))
+    lo = float(SCAN_SHOTS)
+    hi = min(float(MAX_STRATUM_SHOTS), max(float(SCAN_SHOTS), max(expected.values(), default=SCAN_SHOTS)))
     if spend(hi) <= share:
         return int(hi)
     for _ in range(60):
