@@ -133,8 +133,40 @@ def sample_fault_sets(odds: npt.NDArray[np.float64], faults: int, shots: int,
         missing = missing[~distinct]
         if missing.size == 0:
             return out
-    raise ValueError(f"could not draw {faults} distinct mechanisms: a few mechanisms dominate the odds "
-                     f"(acceptance below 1/{MAX_REDRAWS}).")
+    # A few mechanisms dominate the odds (small models, such as short repetition codes): draw the rest
+    # exactly by sequential inclusion instead.
+    out[missing] = _sequential_sets(odds, faults, missing.size, rng)
+    return out
+
+
+def _sequential_sets(odds: npt.NDArray[np.float64], faults: int, shots: int,
+                     rng: np.random.Generator) -> npt.NDArray[np.int64]:
+    """Exact conditional Bernoulli sets by sequential inclusion (Chen, Dempster, Liu, Biometrika 81, 457
+    (1994), from memory): mechanism i joins, with m still to choose, with probability
+    r_i e_(m-1)(r_(i+1..)) / e_m(r_(i..)), from the elementary symmetric polynomials of the suffixes.
+    O(mechanisms x faults) per call, for the small models where rejection fails."""
+    n = odds.size
+    r = odds / odds.mean()  # scaled: the law given w does not change, and the polynomials stay finite
+    suffix = np.zeros((n + 1, faults + 1))
+    suffix[n, 0] = 1.0
+    for i in range(n - 1, -1, -1):
+        suffix[i, 0] = 1.0
+        suffix[i, 1:] = suffix[i + 1, 1:] + r[i] * suffix[i + 1, :-1]
+    remaining = np.full(shots, faults, dtype=np.int64)
+    chosen = np.zeros((shots, faults), dtype=np.int64)
+    filled = np.zeros(shots, dtype=np.int64)
+    for i in range(n):
+        active = remaining > 0
+        if not np.any(active):
+            break
+        m = remaining[active]
+        p = r[i] * suffix[i + 1, m - 1] / suffix[i, m]
+        take = rng.random(m.size) < p
+        rows = np.flatnonzero(active)[take]
+        chosen[rows, filled[rows]] = i
+        filled[rows] += 1
+        remaining[rows] -= 1
+    return chosen
 
 
 def fault_shots(table: FaultTable, fault_sets: npt.NDArray[np.int64]) -> tuple[np.ndarray, np.ndarray]:
