@@ -8,6 +8,8 @@ property each, to show that the suite in ``codebench.testing`` catches it.
 
 from __future__ import annotations
 
+import os
+import signal
 import threading
 from typing import Any, ClassVar
 
@@ -15,6 +17,7 @@ import numpy as np
 import stim
 
 from codebench.decoders.base import Decoder, OptionSpec
+from codebench.decoders.matching import Matching
 
 
 class SingleFaultLookup(Decoder):
@@ -106,3 +109,26 @@ class Unseeded(SingleFaultLookup):
         out = super().decode_batch(detection_events, bit_packed=False)
         out = out ^ (np.random.default_rng().random(out.shape) < 0.3)
         return np.packbits(out, axis=1, bitorder="little") if bit_packed else out
+
+
+class DiesOnce(Matching):
+    """MWPM whose process kills itself (SIGKILL) in the first batch it decodes, once per marker file.
+
+    The worker is then certainly inside a batch when it dies, whatever the
+    machine's load: the scheduler's view of the lost batch does not depend on
+    timing. ``CODEBENCH_TEST_DIE_MARKER`` names the marker; unset, it decodes
+    like ``mwpm``.
+    """
+
+    name = "dies_once"
+
+    def decode_batch(self, detection_events: np.ndarray, *, bit_packed: bool = True) -> np.ndarray:
+        marker = os.environ.get("CODEBENCH_TEST_DIE_MARKER")
+        if marker:
+            try:
+                os.close(os.open(marker, os.O_CREAT | os.O_EXCL | os.O_WRONLY))
+            except FileExistsError:
+                pass
+            else:
+                os.kill(os.getpid(), signal.SIGKILL)
+        return super().decode_batch(detection_events, bit_packed=bit_packed)

@@ -41,6 +41,7 @@ from codebench.engine.cluster import ClusterSpec, parse_cluster
 from codebench.engine.dask_executor import DaskExecutor, batch_system_cluster, start_dask_executor
 from codebench.engine.executors import InProcessExecutor
 from codebench.errors import CodebenchError, ConfigError
+import plugin_decoder
 from test_engine import CLI, batch_rows, cli, counts, reap_group, row_count, write
 
 # Two points stop on the failure target, two on the shot budget; the largest
@@ -189,17 +190,26 @@ def test_worker_killed_mid_batch_changes_no_count(sweep_file: Path, reference: t
     assert pid not in client.run(os.getpid).values()
 
 
-def test_batch_the_scheduler_gives_up_on_is_resubmitted(sweep_file: Path, reference: tuple[Path, pd.DataFrame],
-                                                        tmp_path: Path) -> None:
-    # With no failures allowed, the scheduler declares the killed worker's batches lost
-    # (KilledWorker) at once; the executor must resubmit them itself.
+def test_batch_the_scheduler_gives_up_on_is_resubmitted(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # With no failures allowed, the scheduler declares a batch lost (KilledWorker) as soon
+    # as its worker dies under it; the executor must resubmit it itself. The worker kills
+    # itself inside its first batch (plug-in ``DiesOnce``), so the batch is certainly
+    # running when it dies, however busy the machine is.
+    study_file = write(tmp_path / "dies.toml", CLUSTER_TOML.replace('"mwpm"', f'"{plugin_decoder.__name__}:DiesOnce"'))
+    marker = tmp_path / "died"
+    monkeypatch.setenv("CODEBENCH_TEST_DIE_MARKER", str(marker))
     with dask.config.set({"distributed.scheduler.allowed-failures": 0}):
         with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0") as local:
             with Client(local) as strict:
                 strict.wait_for_workers(2, timeout=60)
-                frame, _, executor = run_killing_one_worker(sweep_file, tmp_path, strict)
+                executor = DaskExecutor(strict)
+                frame = run_sweep(study_file, out=tmp_path / "dask", executor=executor, progress=False)
+    assert marker.exists(), "no worker died"
     assert executor.resubmitted >= 1
-    assert counts(frame) == counts(reference[1])
+    # The same sweep in process (the marker now exists: nothing dies) gives the same counts.
+    local_frame = run_sweep(study_file, out=tmp_path / "local", executor=InProcessExecutor(), progress=False)
+    assert counts(frame) == counts(local_frame)
+    assert bool(frame["complete"].all())
 
 
 # ---------------------------------------------------------------------------
