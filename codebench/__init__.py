@@ -15,7 +15,13 @@ if TYPE_CHECKING:
 
     from codebench.api import export_csv, load_results, run_sweep
 
-from codebench.errors import CodebenchError, ConfigError, DecoderError, DeviceFileError, StoreError
+from codebench.errors import (
+    CodebenchError,
+    ConfigError,
+    DecoderError,
+    DeviceFileError,
+    StoreError,
+)
 
 __version__ = "0.1.0"
 

@@ -6,7 +6,6 @@ import contextlib
 import json
 import platform
 import sys
-
 from importlib import metadata
 from pathlib import Path
 from typing import Any, Mapping
@@ -14,14 +13,15 @@ from typing import Any, Mapping
 import pandas as pd
 
 from codebench.config import Sweep, load_sweep, parse_sweep
-from codebench.engine.cluster import ClusterSpec, require_packages, scheduler_address
+from codebench.engine.cluster import require_packages, scheduler_address
 from codebench.engine.executors import Executor, make_executor
 from codebench.engine.progress import Progress
 from codebench.engine.runner import RunPlan, StopSignals, describe, execute
 from codebench.errors import CodebenchError, ConfigError, StoreError, not_allowed
-from codebench.export import results_frame, write_csv
-from codebench.store import Store, StoredPoint
-from codebench.store_lock import RunLock
+from codebench.records import ClusterSpec
+from codebench.results.export import results_frame, write_csv
+from codebench.results.lock import RunLock
+from codebench.results.store import Store, StoredPoint
 
 STORE_NAME = "results.sqlite"
 CSV_NAME = "results.csv"

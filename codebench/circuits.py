@@ -19,7 +19,7 @@ from typing import Callable, Literal, Sequence
 
 import stim
 
-from codebench.codes.layout import Basis, Layout
+from codebench.layout import Basis, Layout
 
 LayerKind = Literal["reset", "gate1", "gate2", "measure"]
 GateSet = Literal["cx", "cz"]

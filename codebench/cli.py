@@ -11,6 +11,7 @@ import sys
 from pathlib import Path
 from typing import Callable, NoReturn, Sequence
 
+from codebench.build import noisy_circuit
 from codebench.errors import ClusterError, CodebenchError, Interrupted, not_allowed
 from codebench.stats import INTERVALS
 
@@ -123,7 +124,7 @@ def cmd_circuit(args: argparse.Namespace) -> int:
         print(point_list(args.config))
         return EXIT_OK
     point = point_from_args(args)
-    sys.stdout.write(str(point.circuit()) + "\n")
+    sys.stdout.write(str(noisy_circuit(point)) + "\n")
     return EXIT_OK
 
 

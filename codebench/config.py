@@ -32,27 +32,25 @@ import json
 import os
 import re
 import tomllib
+from collections.abc import Iterable
 from dataclasses import dataclass
 from pathlib import Path
-from collections.abc import Iterable
 from typing import Any, TypeGuard
 
 import numpy as np
 
 from codebench.codes import CODE_FAMILIES
 from codebench.codes.base import CodeFamily
-from codebench.codes.layout import Basis
 from codebench.decoders import DECODERS, get_decoder
 from codebench.decoders.base import Decoder
 from codebench.decoders.plugins import is_spec
-from codebench.engine.cluster import ClusterSpec, parse_cluster
-from codebench.engine.points import Point
-from codebench.engine.stopping import DEFAULT_BATCH_BYTES, Stopping
+from codebench.engine.cluster import parse_cluster
 from codebench.errors import ConfigError, DecoderError, not_allowed
+from codebench.layout import Basis
 from codebench.noise import NOISE_MODELS
 from codebench.noise.base import NoiseModel
-from codebench.noise.calibration import Device, load_device
-from codebench.noise.device import DeviceNoise
+from codebench.options import resolve_options
+from codebench.records import DEFAULT_BATCH_BYTES, ClusterSpec, Point, Stopping
 
 __all__ = ["Sweep", "load_sweep", "parse_rounds", "parse_sweep"]
 
@@ -69,20 +67,8 @@ _SEED_LIMIT = 2**63
 _TOP_KEYS = ("name", "seed", "stopping", "engine", "cluster", "study")
 _STOPPING_KEYS = ("failure_target", "shot_budget", "relative_precision")
 _ENGINE_KEYS = ("batch_bytes",)
-_STUDY_KEYS = (
-    "code",
-    "distances",
-    "rounds",
-    "basis",
-    "noise",
-    "p",
-    "decoders",
-    "decoder_options",
-    "label",
-    "noise_options",
-    "device",
-    "scale",
-)
+#: Study keys of every study; the noise models' own keys (rates, options) are added from the registry.
+_STUDY_KEYS = ("code", "distances", "rounds", "basis", "noise", "decoders", "decoder_options", "label")
 _ROUNDS_ALLOWED = (
     "a positive integer, a non-empty list of positive integers, "
     "or a multiple of d such as 'd' or '2d'"
@@ -350,7 +336,7 @@ def _parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[P
     at = f"study[{index}]"
     if not isinstance(study, dict):
         raise _Problem(not_allowed(at, study, "a table ([[study]])"))
-    _check_keys(study, at, _STUDY_KEYS)
+    _check_keys(study, at, _STUDY_KEYS + tuple(sorted(_noise_keys())))
 
     code_allowed = _one_of(CODE_FAMILIES)
     code = _require(study, "code", code_allowed, at)
@@ -369,19 +355,7 @@ def _parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[P
         raise _Problem(not_allowed(f"{at}.noise", noise, noise_allowed))
     model = NOISE_MODELS[noise]
 
-    if noise == DeviceNoise.name:
-        for key in ("p", "noise_options"):
-            if key in study:
-                raise _Problem(f"{at}.{key} is not used with noise = 'device': the device file sets the error "
-                               "rates; use scale = [...] for what-if factors.")
-        device = _load_device(_require(study, "device", "the path of a device file", at), f"{at}.device", base_dir)
-        rates = _parse_p(study.get("scale", [1.0]), model, at, key="scale")
-        device_options: tuple[tuple[str, str], ...] = (("device", device.canonical_json()),)
-    else:
-        for key in ("device", "scale"):
-            if key in study:
-                raise _Problem(f"{at}.{key} is only used with noise = 'device'; got noise = {noise!r}.")
-        rates = _parse_p(_require(study, "p", _P_ALLOWED, at), model, at)
+    rates, options = _parse_noise(study, model, at, base_dir)
     decoders = _parse_decoders(
         _require(study, "decoders", f"a non-empty list of names from {_names(DECODERS)}", at), at
     )
@@ -389,10 +363,6 @@ def _parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[P
     label = study.get("label", str(index))
     if not isinstance(label, str) or not label:
         raise _Problem(not_allowed(f"{at}.label", label, "a non-empty string"))
-    if noise == DeviceNoise.name:
-        options = device_options
-    else:
-        options = _parse_noise_options(study.get("noise_options", {}), model, at)
 
     points = [
         Point(
@@ -448,13 +418,15 @@ def _parse_bases(value: object, family: CodeFamily, at: str) -> list[Basis]:
     return bases
 
 
-def _load_device(value: object, path: str, base_dir: Path) -> Device:
+def _source_file(value: object, path: str, kind: str, base_dir: Path) -> Path:
     if not isinstance(value, str) or not value:
-        raise _Problem(not_allowed(path, value, "the path of a device file (TOML or JSON)"))
+        raise _Problem(not_allowed(path, value, f"the path of a {kind} file (TOML or JSON)"))
     file = Path(value) if Path(value).is_absolute() else base_dir / value
+    if file.is_dir():
+        raise _Problem(not_allowed(path, value, f"a {kind} file (TOML or JSON); {file} is a folder"))
     if not file.is_file():
-        raise _Problem(not_allowed(path, value, f"an existing device file ({file} does not exist)"))
-    return load_device(file)
+        raise _Problem(not_allowed(path, value, f"an existing {kind} file ({file} does not exist)"))
+    return file
 
 
 def _parse_p(value: object, model: type[NoiseModel], at: str, key: str = "p") -> list[float]:
@@ -544,20 +516,49 @@ def _parse_decoder_options(
     return chosen
 
 
-def _parse_noise_options(
-    value: object, model: type[NoiseModel], at: str
-) -> tuple[tuple[str, str], ...]:
+def _noise_keys() -> set[str]:
+    return {key for model in NOISE_MODELS.values() for key in _model_keys(model)}
+
+
+def _model_keys(model: type[NoiseModel]) -> set[str]:
+    """The study keys a noise model reads: its rate key and its options' source."""
+    return {model.rate.key, "noise_options" if model.source_key is None else model.source_key}
+
+
+def _parse_noise(study: dict[str, Any], model: type[NoiseModel], at: str,
+                 base_dir: Path) -> tuple[list[float], tuple[tuple[str, str], ...]]:
+    """The study's rates and noise options, read where ``model`` declares them.
+
+    The rates come from the model's rate key (``p``, or ``scale`` for a factor
+    on a device's error rates); the options from the file named by its source
+    key (``device``) or else from the ``noise_options`` table, checked against
+    the model's declared option specs.
+    """
+    own = _model_keys(model)
+    for key in sorted(_noise_keys() - own):
+        if key in study:
+            users = [repr(m.name) for m in NOISE_MODELS.values() if key in _model_keys(m)]
+            raise _Problem(f"{at}.{key} is not used with noise = {model.name!r} (only with noise = "
+                           f"{', '.join(users)}); it takes {', '.join(sorted(own))}: "
+                           f"{model.rate.key} = [...] for its rates.")
+    if model.rate.default is None:
+        rates = _parse_p(_require(study, model.rate.key, _P_ALLOWED, at), model, at, key=model.rate.key)
+    else:
+        rates = _parse_p(study.get(model.rate.key, list(model.rate.default)), model, at, key=model.rate.key)
+    if model.source_key is not None:
+        kind = model.source_key
+        file = _source_file(_require(study, kind, f"the path of a {kind} file", at), f"{at}.{kind}", kind, base_dir)
+        return rates, tuple(sorted(model.options_from_source(file).items()))
+    table = study.get("noise_options", {})
     path = f"{at}.noise_options"
-    if not isinstance(value, dict):
-        raise _Problem(not_allowed(path, value, "a table of option = value"))
-    _check_keys(value, path, tuple(model.options))
-    chosen: dict[str, str] = {}
-    for key, allowed in model.options.items():
-        picked = value.get(key, allowed[0])
-        if not isinstance(picked, str) or picked not in allowed:
-            raise _Problem(not_allowed(f"{path}.{key}", picked, f"{_one_of(allowed)} for {model.name}"))
-        chosen[key] = picked
-    return tuple(sorted(chosen.items()))
+    if not isinstance(table, dict):
+        raise _Problem(not_allowed(path, table, "a table of option = value"))
+    _check_keys(table, path, tuple(model.option_specs))
+    try:
+        chosen = resolve_options(model.option_specs, table, path, model.name)
+    except (KeyError, TypeError, ValueError) as exc:
+        raise _Problem(str(exc.args[0])) from None
+    return rates, tuple(sorted((k, str(v)) for k, v in chosen.items()))
 
 
 def _check_keys(table: dict[Any, Any], at: str, allowed: tuple[str, ...]) -> None:

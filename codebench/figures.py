@@ -199,7 +199,7 @@ def _non_default_options(noise: str, noise_options: str) -> dict[str, str]:
     if not isinstance(options, dict):
         return {"options": str(options)}
     model = NOISE_MODELS.get(noise)
-    defaults = {key: allowed[0] for key, allowed in model.options.items()} if model is not None else {}
+    defaults = {key: str(spec.default) for key, spec in model.option_specs.items()} if model is not None else {}
     return {str(k): str(v) for k, v in sorted(options.items()) if defaults.get(str(k)) != str(v)}
 
 

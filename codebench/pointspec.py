@@ -5,8 +5,8 @@ from __future__ import annotations
 import argparse
 
 from codebench.config import load_sweep, parse_sweep
-from codebench.engine.points import Point
 from codebench.errors import ConfigError, not_allowed
+from codebench.records import Point
 
 
 def point_list(config: str) -> str:

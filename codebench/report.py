@@ -31,9 +31,9 @@ import pandas as pd
 
 from codebench.api import STORE_NAME, load_results, versions
 from codebench.errors import CodebenchError
-from codebench.export import speed_verdict
 from codebench.figures import FigureFile, chosen_threshold, render_figures
-from codebench.store import Store
+from codebench.results.export import speed_verdict
+from codebench.results.store import Store
 
 __all__ = ["REPORT_DIR", "RunInfo", "read_run_info", "write_report"]
 

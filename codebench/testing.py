@@ -58,11 +58,12 @@ from typing import Any
 import numpy as np
 import stim
 
+from codebench.build import noisy_circuit
 from codebench.decoders import DECODERS, get_decoder
 from codebench.decoders.base import Decoder
-from codebench.engine.points import Point
-from codebench.engine.worker import BatchTask, batch_seed, run_batch
+from codebench.engine.worker import batch_seed, run_batch
 from codebench.errors import CodebenchError
+from codebench.records import BatchTask, Point
 
 __all__ = ["DECODER_CHECKS", "DEFAULT_POINT", "check_decoder", "decoder_checks", "run_decoder_check"]
 
@@ -279,7 +280,7 @@ def _subject(decoder: type[Decoder] | str, circuit: stim.Circuit | None,
         raise TypeError(f"decoder must be a Decoder subclass, a registered name or 'module:ClassName'; "
                         f"got {decoder!r}")
     if circuit is None:
-        circuit = DEFAULT_POINT.circuit()
+        circuit = noisy_circuit(DEFAULT_POINT)
     elif not isinstance(circuit, stim.Circuit):
         raise TypeError(f"circuit must be a stim.Circuit; got {type(circuit).__name__}")
     resolved = cls.resolve_options(dict(options or {}))

@@ -25,9 +25,9 @@ from pathlib import Path
 from typing import Any, Callable
 
 from codebench.api import run_sweep
-from codebench.engine.cluster import ClusterSpec
 from codebench.engine.dask_executor import start_dask_executor
 from codebench.engine.executors import Executor, LocalExecutor
+from codebench.records import ClusterSpec
 
 WORKERS = 2
 

@@ -39,8 +39,9 @@ import psutil
 import pymatching
 
 from codebench.api import run_sweep
+from codebench.build import noisy_circuit
 from codebench.config import parse_sweep
-from codebench.engine.points import Point
+from codebench.records import Point
 
 
 class CpuMeter:
@@ -109,7 +110,7 @@ def bare(points: list[Point], shots: int) -> int:
     """The minimal loop: circuit, detector error model, matching, bit-packed sampling and decoding."""
     failures = 0
     for point in points:
-        circuit = point.circuit()
+        circuit = noisy_circuit(point)
         matching = pymatching.Matching.from_detector_error_model(circuit.detector_error_model(decompose_errors=True))
         sampler = circuit.compile_detector_sampler(seed=1)
         left = shots

@@ -36,9 +36,9 @@ import psutil
 
 from codebench.config import parse_sweep
 from codebench.engine.executors import LocalExecutor
-from codebench.engine.points import Point
 from codebench.engine.worker import compile_point, count_failures
 from codebench.forecast.strata import sample_point
+from codebench.records import Point
 from codebench.stats import per_round
 
 ROOT = Path(__file__).resolve().parents[1]

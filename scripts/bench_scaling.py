@@ -55,14 +55,14 @@ from importlib import metadata
 
 import numpy as np
 
+from codebench.build import qubit_count
 from codebench.codes import Basis, get_code_family
 from codebench.decoders import DECODERS, get_decoder
 from codebench.engine import worker
-from codebench.engine.points import Point
-from codebench.engine.stopping import FIRST_BATCH, batch_cap
-from codebench.engine.worker import BatchResult, BatchTask, batch_seed, run_batch
-from codebench.export import decode_us_per_round
+from codebench.engine.worker import batch_seed, run_batch
 from codebench.noise import get_noise_model
+from codebench.records import FIRST_BATCH, BatchResult, BatchTask, Point, batch_cap
+from codebench.results.export import decode_us_per_round
 
 CODE = "rotated_surface"
 NOISE = "si1000"
@@ -208,7 +208,7 @@ def table(entries: list[Measured]) -> list[str]:
         decode_per_shot = e.decode_seconds / e.shots * 1e6
         sample_per_shot = (e.seconds - e.decode_seconds) / e.shots * 1e6
         lines.append(
-            f"| {point.distance} | {point.rounds} | {point.qubit_count():,} | {e.detectors:,} "
+            f"| {point.distance} | {point.rounds} | {qubit_count(point):,} | {e.detectors:,} "
             f"| {e.compile_seconds:.2f} | {e.shots:,} | {e.shots / e.seconds:,.0f} | {sample_per_shot:.2f} "
             f"| {decode_per_shot:.2f} | {decode_us_per_round(e.decode_seconds, e.shots, point.rounds):.3f} |"
         )

@@ -5,7 +5,7 @@ depolarizing noise p = 1e-3, matching decoder. Three measurements, each on
 the same number of shots and timed from start to finish (circuit build,
 detector error model, decoder compile included):
 
-* ``raw loop``: the point's circuit from ``Point(...).circuit()``, one
+* ``raw loop``: the point's circuit from ``noisy_circuit(Point(...))``, one
   compiled detector sampler, bit-packed batches with separate observables,
   one matching graph built from the decomposed detector error model,
   ``decode_batch`` on bit-packed shots and predictions, mismatching rows
@@ -47,7 +47,8 @@ import numpy as np
 import pymatching
 
 from codebench.api import run_sweep
-from codebench.engine.points import Point
+from codebench.build import noisy_circuit
+from codebench.records import Point
 
 DISTANCE = 5
 ROUNDS = 5
@@ -70,7 +71,7 @@ def sweep_config(shots: int) -> dict[str, Any]:
 def raw_loop(shots: int, batch: int) -> tuple[float, int]:
     """Seconds and failures of the minimal loop on ``shots`` shots."""
     start = time.perf_counter()
-    circuit = POINT.circuit()
+    circuit = noisy_circuit(POINT)
     dem = circuit.detector_error_model(decompose_errors=True)
     matcher = pymatching.Matching.from_detector_error_model(dem)
     sampler = circuit.compile_detector_sampler(seed=SEED)

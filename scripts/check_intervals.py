@@ -27,9 +27,14 @@ from pathlib import Path
 
 from codebench.config import parse_sweep
 from codebench.engine.executors import InProcessExecutor
-from codebench.engine.points import Point
 from codebench.forecast import forecast
-from codebench.forecast.coverage import Trial, direct_reference, stratified_trials, summarise
+from codebench.forecast.coverage import (
+    Trial,
+    direct_reference,
+    stratified_trials,
+    summarise,
+)
+from codebench.records import Point
 from codebench.stats import per_round
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -29,7 +29,7 @@ from distributed import Client, LocalCluster
 
 from codebench.api import run_sweep
 from codebench.engine.dask_executor import DaskExecutor
-from codebench.engine.stopping import DEFAULT_BATCH_BYTES
+from codebench.records import DEFAULT_BATCH_BYTES
 
 
 def peak_rss_mib() -> float:

@@ -12,13 +12,12 @@ import dataclasses
 import itertools
 from pathlib import Path
 
-import numpy as np
 import pytest
 import stim
 
 from codebench.circuits import build_memory
 from codebench.codes import get_code_family
-from codebench.codes.layout import Layout
+from codebench.layout import Layout
 from codebench.noise import get_noise_model
 
 DISTANCES = {"repetition": (2, 3, 4, 5), "rotated_surface": (3, 5, 7)}

@@ -32,17 +32,22 @@ from typing import Any, Iterator
 
 import dask
 import pandas as pd
+import plugin_decoder
 import pytest
 from distributed import Client, LocalCluster
+from test_engine import CLI, batch_rows, cli, counts, reap_group, row_count, write
 
 from codebench.api import load_results, run_sweep
 from codebench.config import load_sweep
-from codebench.engine.cluster import ClusterSpec, parse_cluster
-from codebench.engine.dask_executor import DaskExecutor, batch_system_cluster, start_dask_executor
+from codebench.engine.cluster import parse_cluster
+from codebench.engine.dask_executor import (
+    DaskExecutor,
+    batch_system_cluster,
+    start_dask_executor,
+)
 from codebench.engine.executors import InProcessExecutor
 from codebench.errors import CodebenchError, ConfigError
-import plugin_decoder
-from test_engine import CLI, batch_rows, cli, counts, reap_group, row_count, write
+from codebench.records import ClusterSpec
 
 # Two points stop on the failure target, two on the shot budget; the largest
 # batches take a good fraction of a second, so a worker can be killed mid-batch.
@@ -465,7 +470,12 @@ def test_workers_with_other_libraries_are_refused_before_any_batch(client: Clien
 
 
 def test_worker_with_other_libraries_is_refused(tmp_path: Path) -> None:
-    from codebench.engine.worker import BatchTask, EnvironmentMismatch, environment, run_batch_checked
+    from codebench.engine.worker import (
+        EnvironmentMismatch,
+        environment,
+        run_batch_checked,
+    )
+    from codebench.records import BatchTask
 
     task = BatchTask("k", {}, 0, 1, 0)
     other = {**environment(), "stim": "0.0.1"}

@@ -14,9 +14,8 @@ import numpy as np
 import pytest
 
 from codebench.config import Sweep, load_sweep, parse_rounds, parse_sweep
-from codebench.engine.points import Point
-from codebench.engine.stopping import DEFAULT_BATCH_BYTES, Stopping
 from codebench.errors import ConfigError
+from codebench.records import DEFAULT_BATCH_BYTES, Point, Stopping
 
 REPO = Path(__file__).resolve().parent.parent
 #: A shipped example device as a TOML string (JSON string escapes are valid TOML basic-string escapes).
@@ -90,9 +89,9 @@ BAD: list[tuple[str, str, list[str]]] = [
      sweep_text(TOP, study(noise='"device"', p=None, device='"dev.toml"', noise_options='{ a = "b" }')),
      ["study[0].noise_options is not used with noise = 'device'"]),
     ("scale without device noise", sweep_text(TOP, study(scale="[0.5]")),
-     ["study[0].scale is only used with noise = 'device'", "'circuit_depolarizing'"]),
+     ["study[0].scale is not used with noise = 'circuit_depolarizing'", "only with noise = 'device'"]),
     ("device without device noise", sweep_text(TOP, study(device='"configs/devices/x.toml"')),
-     ["study[0].device is only used with noise = 'device'", "'circuit_depolarizing'"]),
+     ["study[0].device is not used with noise = 'circuit_depolarizing'", "only with noise = 'device'"]),
     ("missing device file", sweep_text(TOP, study(noise='"device"', p=None, device='"nowhere.toml"')),
      ["study[0].device", "'nowhere.toml'", "an existing device file"]),
     ("device path not a string", sweep_text(TOP, study(noise='"device"', p=None, device="3")),

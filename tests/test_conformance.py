@@ -13,14 +13,15 @@ from pathlib import Path
 
 import pytest
 
+from codebench.build import noisy_circuit
 from codebench.codes import CODE_FAMILIES
 from codebench.decoders import DECODERS
 from codebench.engine.executors import Executor, InProcessExecutor, LocalExecutor
-from codebench.engine.points import Point
-from codebench.engine.worker import BatchTask, batch_seed
+from codebench.engine.worker import batch_seed
 from codebench.noise import NOISE_MODELS
 from codebench.noise.base import NoiseModel
 from codebench.noise.calibration import load_device
+from codebench.records import BatchTask, Point
 from codebench.testing import decoder_checks, run_decoder_check
 
 REPO = Path(__file__).parents[1]
@@ -117,7 +118,7 @@ class TestCodeFamilyConformance:
             for gate_set in ("cx", "cz"):
                 circuit = family.ideal_circuit(d, 2, basis, gate_set).to_stim()  # type: ignore[arg-type]
                 assert not circuit.compile_detector_sampler(seed=1).sample(50, append_observables=True).any()
-            sampled = Point(name, d, 2, basis, "circuit_depolarizing", 0.0, "mwpm").circuit()
+            sampled = noisy_circuit(Point(name, d, 2, basis, "circuit_depolarizing", 0.0, "mwpm"))
             assert sampled.num_detectors == family.ideal_circuit(d, 2, basis, "cx").to_stim().num_detectors
             assert not sampled.compile_detector_sampler(seed=1).sample(50, append_observables=True).any()
 
@@ -135,8 +136,8 @@ def _tasks() -> list[BatchTask]:
 
 
 def _local_dask_cluster() -> Executor:
-    from codebench.engine.cluster import ClusterSpec
     from codebench.engine.dask_executor import start_dask_executor
+    from codebench.records import ClusterSpec
 
     return start_dask_executor(ClusterSpec(local_workers=2))
 

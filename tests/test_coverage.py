@@ -18,9 +18,14 @@ import pytest
 
 from codebench.config import parse_sweep
 from codebench.engine.executors import InProcessExecutor
-from codebench.engine.points import Point
 from codebench.forecast import forecast
-from codebench.forecast.coverage import Trial, direct_reference, stratified_trials, summarise
+from codebench.forecast.coverage import (
+    Trial,
+    direct_reference,
+    stratified_trials,
+    summarise,
+)
+from codebench.records import Point
 
 ROOT = Path(__file__).resolve().parents[1]
 IMPROVED = ROOT / "configs" / "devices" / "larkspur_improved.toml"

@@ -22,23 +22,24 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+import plugin_decoder
 import pytest
 import stim
 from scipy.stats import binomtest
+from test_code_capacity_exact import exact_bounds
 
-import plugin_decoder
 from codebench.api import run_sweep
-from codebench.config import load_sweep, parse_sweep
+from codebench.build import noisy_circuit
+from codebench.config import load_sweep
 from codebench.decoders import DECODERS, get_decoder
 from codebench.decoders.base import Decoder, OptionSpec
 from codebench.decoders.belief import BeliefLSD, BeliefOSD, check_matrices
 from codebench.decoders.plugins import load_decoder
-from codebench.engine.points import Point
 from codebench.errors import ConfigError, DecoderError
-from codebench.export import decode_us_per_round, speed_verdict
+from codebench.records import Point
 from codebench.report import _speed_table, write_report
+from codebench.results.export import decode_us_per_round, speed_verdict
 from codebench.testing import check_decoder, decoder_checks, run_decoder_check
-from test_code_capacity_exact import exact_bounds
 
 ALPHA = 0.001  # two-sided: 99.9% intervals
 NEVER = 10**9  # failure_target large enough that the shot budget decides
@@ -115,7 +116,7 @@ def test_belief_decoders_on_the_repetition_code(tmp_path: Path, decoder: str) ->
     assert binomtest(int(capacity["failures"]), int(capacity["shots"]), repetition_exact(5, 0.1)).pvalue >= ALPHA
     # Circuit level: far better than predicting "no flip" (common practice sanity bound).
     point = Point("repetition", 5, 5, "Z", "circuit_depolarizing", 0.01, decoder)
-    _, obs = point.circuit().compile_detector_sampler(seed=1).sample(40_000, separate_observables=True)
+    _, obs = noisy_circuit(point).compile_detector_sampler(seed=1).sample(40_000, separate_observables=True)
     circuit = frame[(frame["study"] == "circuit") & (frame["decoder"] == decoder)].iloc[0]
     assert circuit["failure_rate"] < 0.2 * obs.any(axis=1).mean()
 
@@ -125,7 +126,7 @@ def test_belief_decoders_at_circuit_level(decoder: str) -> None:
     # Rotated surface d = 3, circuit noise: better than guessing by far, and not worse than
     # matching by more than the counting noise allows (BP+OSD uses the hyperedges that the
     # matching graph drops; Roffe et al. 2020): common practice, loose bound.
-    circuit = Point("rotated_surface", 3, 3, "Z", "circuit_depolarizing", 0.005, decoder).circuit()
+    circuit = noisy_circuit(Point("rotated_surface", 3, 3, "Z", "circuit_depolarizing", 0.005, decoder))
     det, obs = circuit.compile_detector_sampler(seed=17).sample(20_000, separate_observables=True, bit_packed=True)
     rates = {}
     for name in (decoder, "mwpm"):
@@ -148,7 +149,7 @@ def test_single_faults_are_corrected(decoder: str, code: str, noise: str) -> Non
     # from BP's soft output one column at a time and may settle on a less likely error inside a
     # cluster, so for bplsd this is a loose sanity bound (95% of the single faults).
     d = 3
-    circuit = Point(code, d, d, "Z", noise, 0.003, decoder).circuit()
+    circuit = noisy_circuit(Point(code, d, d, "Z", noise, 0.003, decoder))
     dem = circuit.detector_error_model(decompose_errors=False)
     matrices = check_matrices(dem)
     dec = DECODERS[decoder]()
@@ -167,7 +168,7 @@ def test_single_faults_are_corrected(decoder: str, code: str, noise: str) -> Non
 
 
 def test_check_matrices_reproduce_every_error_of_the_model() -> None:
-    circuit = Point("rotated_surface", 3, 2, "X", "si1000", 0.004, "bposd").circuit()
+    circuit = noisy_circuit(Point("rotated_surface", 3, 2, "X", "si1000", 0.004, "bposd"))
     dem = circuit.detector_error_model(decompose_errors=False)
     m = check_matrices(dem)
     check, obs = m.check.toarray(), m.observables.toarray()
@@ -225,7 +226,7 @@ def test_default_options_are_documented_values() -> None:
 
 
 def test_options_reach_ldpc() -> None:
-    dem = Point("repetition", 3, 2, "Z", "circuit_depolarizing", 0.01, "bposd").circuit().detector_error_model()
+    dem = noisy_circuit(Point("repetition", 3, 2, "Z", "circuit_depolarizing", 0.01, "bposd")).detector_error_model()
     osd = BeliefOSD(osd_method="osd_e", osd_order=3, max_iter=12, bp_method="product_sum", ms_scaling_factor=0.5,
                     schedule="serial")
     osd.compile(dem)
@@ -367,7 +368,7 @@ def test_plugin_counts_do_not_depend_on_workers(tmp_path: Path) -> None:
 def test_conformance_suite_passes_the_plugin() -> None:
     # A single-fault lookup is no match for circuit noise at p = 1% (the default circuit), but at
     # code capacity on d = 3 it corrects every weight-1 error.
-    capacity = Point("rotated_surface", 3, 1, "Z", "code_capacity", 0.05, PLUGIN).circuit()
+    capacity = noisy_circuit(Point("rotated_surface", 3, 1, "Z", "code_capacity", 0.05, PLUGIN))
     check_decoder(plugin_decoder.SingleFaultLookup, capacity)
     check_decoder(PLUGIN, options={"min_probability": 0.001}, skip=("decodes_better_than_guessing",))
     with pytest.raises(AssertionError, match="fails decodes_better_than_guessing"):
@@ -398,7 +399,7 @@ def test_conformance_suite_needs_a_class_workers_can_find() -> None:
 
 
 def test_pickled_belief_decoder_recompiles_in_a_worker() -> None:
-    circuit = Point("rotated_surface", 3, 2, "Z", "si1000", 0.002, "bplsd").circuit()
+    circuit = noisy_circuit(Point("rotated_surface", 3, 2, "Z", "si1000", 0.002, "bplsd"))
     dec = BeliefLSD(lsd_order=2)
     dec.compile(circuit.detector_error_model(decompose_errors=False))
     clone = pickle.loads(pickle.dumps(dec))

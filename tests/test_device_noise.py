@@ -30,12 +30,17 @@ import pytest
 import stim
 
 from codebench.api import run_sweep
-from codebench.codes.layout import Basis
+from codebench.build import noisy_circuit
 from codebench.engine.executors import InProcessExecutor
-from codebench.engine.points import Point
 from codebench.errors import CodebenchError, DeviceFileError
+from codebench.layout import Basis
 from codebench.noise.calibration import load_device, parse_device
-from codebench.noise.device import depolarizing_from_infidelity, depolarizing_from_rb_decay, twirled_idle
+from codebench.noise.device import (
+    depolarizing_from_infidelity,
+    depolarizing_from_rb_decay,
+    twirled_idle,
+)
+from codebench.records import Point
 
 REPO = Path(__file__).parents[1]
 DEVICES = REPO / "configs" / "devices"
@@ -452,7 +457,7 @@ def _line_device(**changes: Any) -> str:
 def test_layout_of_wrong_length_fails_at_circuit_build() -> None:
     device_json = _line_device(layouts=[{"code": "repetition", "distance": 3, "qubits": ["q0", "q1", "q2", "q3"]}])
     with pytest.raises(DeviceFileError) as info:
-        device_point(device_json, code="repetition").circuit()
+        noisy_circuit(device_point(device_json, code="repetition"))
     message = str(info.value)
     assert "\n" not in message
     for fragment in ("layouts[0].qubits", "5 device qubits", "repetition d=3", "got 4"):
@@ -461,16 +466,16 @@ def test_layout_of_wrong_length_fails_at_circuit_build() -> None:
 
 def test_code_needing_a_missing_edge_fails_at_circuit_build() -> None:
     # Repetition d=3 on a line q0..q4 needs the edges q0-q1, q1-q2, q2-q3, q3-q4 (common practice).
-    whole = device_point(_line_device(), code="repetition").circuit()
+    whole = noisy_circuit(device_point(_line_device(), code="repetition"))
     assert whole.num_detectors > 0
     gappy = _line_device(coupling={"edges": [["q0", "q1"], ["q1", "q2"], ["q3", "q4"], ["q0", "q4"]]})
     with pytest.raises(DeviceFileError) as info:
-        device_point(gappy, code="repetition").circuit()
+        noisy_circuit(device_point(gappy, code="repetition"))
     message = str(info.value)
     assert "\n" not in message
     assert "repetition d=3" in message and "q2" in message and "q3" in message and "[coupling]" in message
     # Without a layout for the code there is no mapping, so the coupling graph is not consulted.
-    assert device_point(gappy, code="repetition", distance=5).circuit().num_detectors > 0
+    assert noisy_circuit(device_point(gappy, code="repetition", distance=5)).num_detectors > 0
 
 
 def _sweep_file(tmp_path: Path, device: str) -> Path:
@@ -535,7 +540,7 @@ A1, A4, A6, M0, M2, M4 = 1, 4, 6, 9, 11, 13
 
 @pytest.fixture(scope="module")
 def current_circuit() -> stim.Circuit:
-    return device_point(current_json()).circuit()
+    return noisy_circuit(device_point(current_json()))
 
 
 def test_whole_circuit_matches_device_file(current_circuit: stim.Circuit) -> None:
@@ -615,7 +620,7 @@ def test_single_qubit_gate_channel(current_circuit: stim.Circuit) -> None:
 
 
 def test_scale_half_halves_probabilities_and_doubles_coherence(current_circuit: stim.Circuit) -> None:
-    half = device_point(current_json(), scale=0.5).circuit()
+    half = noisy_circuit(device_point(current_json(), scale=0.5))
     check_whole_circuit(half, RAW_CURRENT, "rotated_surface", 3, 0.5)
     _, full_layers = layers_of(current_circuit)
     _, half_layers = layers_of(half)
@@ -636,7 +641,7 @@ def test_scale_half_halves_probabilities_and_doubles_coherence(current_circuit: 
 def test_gate_error_without_decoherence_adds_idle_on_gate_qubits() -> None:
     raw = copy.deepcopy(RAW_CURRENT)
     raw["model"]["gate_error_includes_decoherence"] = False
-    circuit = device_point(current_json(gate_error_includes_decoherence=False)).circuit()
+    circuit = noisy_circuit(device_point(current_json(gate_error_includes_decoherence=False)))
     check_whole_circuit(circuit, raw, "rotated_surface", 3, 1.0)
     _, layers = layers_of(circuit)
     cz = next(lay for lay in layers if lay.gates and lay.kind == "gate2" and A4 in lay.busy)
@@ -653,13 +658,13 @@ def test_gate_error_without_decoherence_adds_idle_on_gate_qubits() -> None:
 
 def test_defaults_apply_without_a_layout() -> None:
     # d=5 has no [[layouts]] entry in the example, so every qubit gets the defaults.
-    circuit = device_point(current_json(), distance=5, rounds=2).circuit()
+    circuit = noisy_circuit(device_point(current_json(), distance=5, rounds=2))
     check_whole_circuit(circuit, RAW_CURRENT, "rotated_surface", 5, 1.0)
     for path in sorted(DEVICES.glob("*.toml")):
         raw = tomllib.loads(path.read_text())
         json_text = load_device(path).canonical_json()
         for basis in ("Z", "X"):
-            check_whole_circuit(device_point(json_text, basis=basis, rounds=2).circuit(), raw, "rotated_surface", 3,
+            check_whole_circuit(noisy_circuit(device_point(json_text, basis=basis, rounds=2)), raw, "rotated_surface", 3,
                                 1.0)
 
 
@@ -667,7 +672,7 @@ def test_cx_native_device_circuit() -> None:
     raw = copy.deepcopy(BASE)
     raw["native_2q"] = "cx"
     raw["qubits"][2].update(t1_us=30.0, t2_us=20.0, readout_error_0to1=0.01, readout_error_1to0=0.05)
-    circuit = device_point(parse_device(copy.deepcopy(raw)).canonical_json(), code="repetition", basis="X").circuit()
+    circuit = noisy_circuit(device_point(parse_device(copy.deepcopy(raw)).canonical_json(), code="repetition", basis="X"))
     gates = {inst.name for inst in circuit.flattened()}
     assert "CX" in gates and "CZ" not in gates and "MX" in gates
     check_whole_circuit(circuit, raw, "repetition", 3, 1.0)
@@ -693,14 +698,14 @@ def test_noiseless_device_never_fails(tmp_path: Path) -> None:
     quiet = tmp_path / "quiet.toml"
     quiet.write_text(_toml(QUIET))
     for basis in ("Z", "X"):
-        circuit = device_point(load_device(quiet).canonical_json(), basis=basis).circuit()
+        circuit = noisy_circuit(device_point(load_device(quiet).canonical_json(), basis=basis))
         assert not circuit.compile_detector_sampler(seed=11).sample(50_000).any()
     cfg = {"name": "quiet", "seed": 5, "stopping": {"failure_target": 10, "shot_budget": 20_000},
            "study": [_study(quiet, label="quiet"), _study(CURRENT, scale=[0.0], label="off")]}
     frame = run_sweep(cfg, out=tmp_path / "out", executor=InProcessExecutor(), progress=False)
     assert len(frame) == 4
     assert (frame["shots"] == 20_000).all() and (frame["failures"] == 0).all()
-    assert device_point(current_json(), scale=0.0).circuit().detector_error_model().num_errors == 0
+    assert noisy_circuit(device_point(current_json(), scale=0.0)).detector_error_model().num_errors == 0
 
 
 # ---------------------------------------------------------------------------
@@ -757,8 +762,8 @@ def depolarizing_twin(p: float, native_2q: str = "cx", t_ns: float = 100.0) -> d
 @pytest.mark.parametrize("code", ["rotated_surface", "repetition"])
 def test_twin_has_the_same_error_model(code: str, basis: Basis) -> None:
     p = 3e-3
-    twin = device_point(parse_device(depolarizing_twin(p)).canonical_json(), code=code, basis=basis).circuit()
-    reference = Point(code, 3, 3, basis, "circuit_depolarizing", p, "mwpm").circuit()
+    twin = noisy_circuit(device_point(parse_device(depolarizing_twin(p)).canonical_json(), code=code, basis=basis))
+    reference = noisy_circuit(Point(code, 3, 3, basis, "circuit_depolarizing", p, "mwpm"))
     # The ideal circuits are the same (CX gate set: R/RX, CX, M/MX; no H layers).
     strip = {"DEPOLARIZE1", "DEPOLARIZE2", "PAULI_CHANNEL_1", "X_ERROR", "Z_ERROR"}
     assert [(i.name, i.targets_copy()) for i in twin.flattened() if i.name not in strip] == \
@@ -774,8 +779,8 @@ def test_twin_with_cz_differs_structurally() -> None:
     # H qubits and an idle channel on the others, so the twin can only match circuit_depolarizing with
     # native_2q = "cx" (the CZ circuit has strictly more noise locations).
     p = 3e-3
-    twin = device_point(parse_device(depolarizing_twin(p, "cz")).canonical_json()).circuit()
-    reference = Point("rotated_surface", 3, 3, "Z", "circuit_depolarizing", p, "mwpm").circuit()
+    twin = noisy_circuit(device_point(parse_device(depolarizing_twin(p, "cz")).canonical_json()))
+    reference = noisy_circuit(Point("rotated_surface", 3, 3, "Z", "circuit_depolarizing", p, "mwpm"))
     assert twin.num_ticks > reference.num_ticks
     assert not twin.detector_error_model().approx_equals(reference.detector_error_model(), atol=1e-6)
 

@@ -46,8 +46,8 @@ import stim
 
 from codebench.api import load_results, run_sweep
 from codebench.engine.executors import InProcessExecutor, LocalExecutor
-from codebench.engine.stopping import FIRST_BATCH, batch_sizes
 from codebench.errors import CodebenchError
+from codebench.records import FIRST_BATCH, Point, batch_sizes
 
 CLI = [sys.executable, "-c", "from codebench.cli import entry; entry()"]
 Z95 = 1.959963984540054
@@ -595,8 +595,8 @@ def test_empty_store_file_is_started_afresh(tmp_path: Path) -> None:
 
 THREADED_BATCHES = """
 import json, sys, threading
-from codebench.engine.points import Point
-from codebench.engine.worker import BatchTask, run_batch
+from codebench.engine.worker import run_batch
+from codebench.records import BatchTask, Point
 point = Point(code="rotated_surface", distance=3, rounds=3, basis="Z", noise="si1000", p=0.002, decoder="mwpm")
 tasks = [BatchTask(point.key(1), point.params(), i, 2048, 100 + i) for i in range(16)]
 failures = {}
@@ -617,8 +617,8 @@ def test_batches_on_four_threads_of_a_fresh_process_finish_with_sequential_count
         done = subprocess.run([sys.executable, "-c", THREADED_BATCHES], capture_output=True, text=True, timeout=60)
         assert done.returncode == 0, done.stderr
         threaded = json.loads(done.stdout)
-    from codebench.engine.points import Point
-    from codebench.engine.worker import BatchTask, run_batch
+    from codebench.engine.worker import run_batch
+    from codebench.records import BatchTask
 
     point = Point(code="rotated_surface", distance=3, rounds=3, basis="Z", noise="si1000", p=0.002, decoder="mwpm")
     sequential = [run_batch(BatchTask(point.key(1), point.params(), i, 2048, 100 + i)).failures for i in range(16)]
@@ -629,10 +629,10 @@ def test_store_killed_before_its_first_checkpoint_is_still_ours(tmp_path: Path) 
     # Only the write-ahead log holds the rows of a store whose writer was killed before
     # SQLite's first checkpoint; it must be recognised as a codebench store, not a foreign one.
     store = tmp_path / "results.sqlite"
-    code = f"import os; from codebench.store import Store; Store({str(store)!r}); os._exit(0)"
+    code = f"import os; from codebench.results.store import Store; Store({str(store)!r}); os._exit(0)"
     subprocess.run([sys.executable, "-c", code], check=True)
     assert (tmp_path / "results.sqlite-wal").exists()
-    from codebench.store import Store
+    from codebench.results.store import Store
 
     Store(store).close()
 

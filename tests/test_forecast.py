@@ -32,7 +32,13 @@ import pytest
 
 from codebench.cli import main
 from codebench.errors import ConfigError, DeviceFileError
-from codebench.forecast import CAUTIONS, forecast, idle_error, improve_device, parse_improve
+from codebench.forecast import (
+    CAUTIONS,
+    forecast,
+    idle_error,
+    improve_device,
+    parse_improve,
+)
 from codebench.forecast.plan import WORK_PER_SECOND
 from codebench.noise.calibration import load_device
 

@@ -29,6 +29,7 @@ import pytest
 import stim
 
 from codebench import run_sweep
+from codebench.build import noisy_circuit, qubit_count
 from codebench.circuits import FLAG_MARK, IdealCircuit, Layer, NoiseOp
 from codebench.codes import CODE_FAMILIES, get_code_family
 from codebench.codes.heavy_hex import HeavyHex, structure
@@ -36,9 +37,9 @@ from codebench.config import load_sweep
 from codebench.decoders import DECODERS, register
 from codebench.decoders.flagged import FlagMatching, class_posteriors
 from codebench.decoders.matching import Matching
-from codebench.engine.points import Point
 from codebench.noise import get_noise_model
 from codebench.noise.base import NoiseModel, flip_for, idle_qubits
+from codebench.records import Point
 
 REPO = Path(__file__).parents[1]
 
@@ -368,8 +369,8 @@ def test_points_and_registry() -> None:
     assert FAMILY.distance_problem(4) is not None and FAMILY.distance_problem(2) is not None
     assert FAMILY.distance_problem(9) is None
     point = Point("heavy_hex", 3, 3, "X", "si1000", 2e-3, "mwpm")
-    assert point.circuit().num_detectors > 0
-    assert point.qubit_count() == 19
+    assert noisy_circuit(point).num_detectors > 0
+    assert qubit_count(point) == 19
     with pytest.raises(ValueError):
         structure(4)
 
@@ -405,7 +406,7 @@ def test_class_posteriors_match_enumeration() -> None:
 
 def test_flag_matching_is_plain_matching_without_flags() -> None:
     # No flag detectors (rotated surface code): nothing to condition on, same graph as mwpm.
-    circuit = Point("rotated_surface", 5, 5, "Z", "circuit_depolarizing", 5e-3, "mwpm").circuit()
+    circuit = noisy_circuit(Point("rotated_surface", 5, 5, "Z", "circuit_depolarizing", 5e-3, "mwpm"))
     dem = circuit.detector_error_model(decompose_errors=True)
     det, _ = circuit.compile_detector_sampler(seed=2).sample(3000, separate_observables=True, bit_packed=True)
     flagged, plain = FlagMatching(), Matching()

@@ -17,8 +17,8 @@ import pandas as pd
 import pytest
 
 import codebench
-from codebench.analysis import analyze
 import codebench.figures as figures_module
+from codebench.analysis import analyze
 from codebench.figures import distance_colour, write_figures
 from codebench.report import write_report
 
@@ -226,7 +226,7 @@ def test_report_loads_folder_when_given_nothing(sweep: tuple[Path, pd.DataFrame,
 
 
 def _store_meta(folder: Path) -> dict[str, str]:
-    from codebench.store import Store
+    from codebench.results.store import Store
 
     with Store(folder / codebench.api.STORE_NAME, create=False) as store:
         return store.meta()

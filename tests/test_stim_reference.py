@@ -33,7 +33,8 @@ import stim
 from scipy.stats import norm
 
 from codebench.api import run_sweep
-from codebench.engine.points import Point
+from codebench.build import noisy_circuit
+from codebench.records import Point
 
 ALPHA = 0.001  # two-sided 99.9%
 
@@ -101,7 +102,7 @@ SURFACE_STRUCTURE = [(b, d, r) for b in ("Z", "X") for d, r in ((3, 1), (3, 3), 
 def test_rotated_surface_structure_matches_stim(basis: str, d: int, rounds: int) -> None:
     p = 0.02
     ref = stim_circuit(f"surface_code:rotated_memory_{basis.lower()}", d, rounds, p)
-    ours = our_point("rotated_surface", d, rounds, basis, p).circuit()
+    ours = noisy_circuit(our_point("rotated_surface", d, rounds, basis, p))
     assert ours.num_detectors == ref.num_detectors
     assert ours.num_observables == ref.num_observables == 1
     assert len(ours.shortest_graphlike_error()) == len(ref.shortest_graphlike_error()) == d
@@ -115,7 +116,7 @@ REPETITION_STRUCTURE = [(d, r) for d, r in ((2, 2), (3, 1), (3, 3), (5, 5), (6, 
 def test_repetition_structure_matches_stim(d: int, rounds: int) -> None:
     p = 0.04
     ref = stim_circuit("repetition_code:memory", d, rounds, p)
-    ours = our_point("repetition", d, rounds, "Z", p).circuit()
+    ours = noisy_circuit(our_point("repetition", d, rounds, "Z", p))
     assert ours.num_detectors == ref.num_detectors
     assert len(ours.shortest_graphlike_error()) == len(ref.shortest_graphlike_error()) == d
     assert error_multiset(ours) == error_multiset(ref)
@@ -145,7 +146,7 @@ SLOW_RATE_CASES = [
 def test_failure_rate_matches_stim(code: str, task: str, basis: str, d: int, rounds: int, p: float, shots: int) -> None:
     ref = stim_circuit(task, d, rounds, p)
     k_ref = mwpm_failures(ref, shots, seed=1001)
-    k_ours = mwpm_failures(our_point(code, d, rounds, basis, p).circuit(), shots, seed=2002)
+    k_ours = mwpm_failures(noisy_circuit(our_point(code, d, rounds, basis, p)), shots, seed=2002)
     # The rates must be large enough for the comparison to mean something.
     assert k_ref > 100
     pval = two_proportion_pvalue(k_ours, shots, k_ref, shots)

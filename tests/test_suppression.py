@@ -23,7 +23,11 @@ import pytest
 
 from codebench.analysis.families import Family, group_families
 from codebench.analysis.projections import project
-from codebench.analysis.suppression import lambda_fits, per_round_with_variance, scaling_law_fit
+from codebench.analysis.suppression import (
+    lambda_fits,
+    per_round_with_variance,
+    scaling_law_fit,
+)
 from codebench.stats import per_round, total_from_per_round
 
 EpsModel = Callable[[int, float], float]

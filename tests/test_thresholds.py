@@ -28,7 +28,12 @@ import pytest
 
 from codebench.analysis import thresholds as th
 from codebench.analysis.families import Family, group_families
-from codebench.analysis.thresholds import best_threshold, crossing_thresholds, fss_threshold, pseudo_thresholds
+from codebench.analysis.thresholds import (
+    best_threshold,
+    crossing_thresholds,
+    fss_threshold,
+    pseudo_thresholds,
+)
 from codebench.stats import per_round, total_from_per_round
 
 # Finite-size-scaling model (values chosen so 0 < P < 0.5 over the grid).

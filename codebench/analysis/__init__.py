@@ -16,7 +16,12 @@ import pandas as pd
 from codebench.analysis.families import Family, group_families
 from codebench.analysis.projections import project
 from codebench.analysis.suppression import lambda_fits, scaling_law_fit
-from codebench.analysis.thresholds import best_threshold, crossing_thresholds, fss_threshold, pseudo_thresholds
+from codebench.analysis.thresholds import (
+    best_threshold,
+    crossing_thresholds,
+    fss_threshold,
+    pseudo_thresholds,
+)
 
 DEFAULT_TARGETS = (1e-6, 1e-9, 1e-12)
 

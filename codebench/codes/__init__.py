@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from codebench.codes.base import CodeFamily
 from codebench.codes.heavy_hex import HeavyHex
-from codebench.codes.layout import Basis, Check, Layout, Role
 from codebench.codes.repetition import Repetition
 from codebench.codes.rotated_surface import RotatedSurface
+from codebench.layout import Basis, Check, Layout, Role
 
 CODE_FAMILIES: dict[str, CodeFamily] = {}
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 from abc import ABC, abstractmethod
 from typing import TYPE_CHECKING, ClassVar
 
-from codebench.codes.layout import Basis, Layout
+from codebench.layout import Basis, Layout
 
 if TYPE_CHECKING:
     from codebench.circuits import GateSet, IdealCircuit

@@ -70,7 +70,7 @@ from functools import lru_cache
 from typing import TYPE_CHECKING
 
 from codebench.codes.base import CodeFamily
-from codebench.codes.layout import Basis, Check, Layout, Role
+from codebench.layout import Basis, Check, Layout, Role
 
 if TYPE_CHECKING:
     from codebench.circuits import GateSet, IdealCircuit
@@ -268,7 +268,14 @@ def build_heavy_hex_memory(
     the flag's position.
     """
     # Imported here: codebench.circuits imports codebench.codes, which registers this family.
-    from codebench.circuits import FLAG_MARK, Detector, IdealCircuit, LayerBuilder, Op, merge_hadamard_layers
+    from codebench.circuits import (
+        FLAG_MARK,
+        Detector,
+        IdealCircuit,
+        LayerBuilder,
+        Op,
+        merge_hadamard_layers,
+    )
 
     if rounds < 1:
         raise ValueError(f"rounds must be >= 1; got {rounds}")

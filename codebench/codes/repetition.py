@@ -8,7 +8,7 @@ against Z errors). Any d >= 2.
 from __future__ import annotations
 
 from codebench.codes.base import CodeFamily
-from codebench.codes.layout import Basis, Check, Layout, Role
+from codebench.layout import Basis, Check, Layout, Role
 
 
 class Repetition(CodeFamily):

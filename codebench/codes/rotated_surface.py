@@ -13,7 +13,7 @@ checked in tests with stim's shortest_graphlike_error).
 from __future__ import annotations
 
 from codebench.codes.base import CodeFamily
-from codebench.codes.layout import Basis, Check, Layout, Role
+from codebench.layout import Basis, Check, Layout, Role
 
 # Offsets (dx, dy) from a measure qubit to its data qubits, in gate order.
 # y grows downwards; NW = (-1, -1).

@@ -14,105 +14,16 @@ other value (:func:`codebench.errors.not_allowed`), and the complete set
 
 from __future__ import annotations
 
-import math
 from abc import ABC, abstractmethod
 from collections.abc import Mapping
-from dataclasses import dataclass
-from typing import Any, ClassVar, Literal
+from typing import Any, ClassVar
 
 import numpy as np
 import stim
 
-from codebench.errors import not_allowed
+from codebench.options import OptionSpec
 
 __all__ = ["Decoder", "OptionSpec"]
-
-OptionKind = Literal["choice", "int", "float"]
-
-
-@dataclass(frozen=True)
-class OptionSpec:
-    """One declared decoder option.
-
-    Parameters
-    ----------
-    kind : {"choice", "int", "float"}
-        ``choice``: one of ``choices`` (strings, one spelling each); ``int``:
-        an integer (not a bool) in ``[low, high]``; ``float``: a number in the
-        interval given by ``low``/``high`` and ``low_open``/``high_open``.
-    default : str, int or float
-        Used when the sweep file does not set the option.
-    description : str
-        One line for the documentation.
-    choices : tuple of str
-        Allowed values of a ``choice`` option.
-    low, high : float, optional
-        Bounds of a number (``None``: unbounded).
-    low_open, high_open : bool
-        Whether the bound itself is excluded.
-    """
-
-    kind: OptionKind
-    default: str | int | float
-    description: str = ""
-    choices: tuple[str, ...] = ()
-    low: float | None = None
-    high: float | None = None
-    low_open: bool = False
-    high_open: bool = False
-
-    def allowed(self) -> str:
-        """The allowed values as message text, e.g. ``an integer >= 0``."""
-        if self.kind == "choice":
-            return "one of " + ", ".join(repr(c) for c in self.choices)
-        noun = "an integer" if self.kind == "int" else "a number"
-        if self.low is not None and self.high is not None:
-            left = "(" if self.low_open else "["
-            right = ")" if self.high_open else "]"
-            return f"{noun} in {left}{self.low:g}, {self.high:g}{right}"
-        if self.low is not None:
-            return f"{noun} {'>' if self.low_open else '>='} {self.low:g}"
-        if self.high is not None:
-            return f"{noun} {'<' if self.high_open else '<='} {self.high:g}"
-        return noun
-
-    def check(self, value: object, path: str, owner: str = "") -> str | int | float:
-        """``value`` in its canonical type, or ``TypeError``/``ValueError`` in the shared template.
-
-        ``owner`` (a decoder name) is named after the allowed values.
-
-        >>> OptionSpec("int", 7, low=0).check(3, "osd_order")
-        3
-        >>> OptionSpec("float", 0.5, low=0, high=1).check(1, "x")
-        1.0
-        >>> OptionSpec("int", 7, low=0).check(-1, "osd_order", "bposd")
-        Traceback (most recent call last):
-        ...
-        ValueError: osd_order must be an integer >= 0 for bposd; got -1.
-        """
-        allowed = self.allowed() + (f" for {owner}" if owner else "")
-        if self.kind == "choice":
-            if not isinstance(value, str):
-                raise TypeError(not_allowed(path, value, allowed))
-            if value not in self.choices:
-                raise ValueError(not_allowed(path, value, allowed))
-            return value
-        if self.kind == "int":
-            if not isinstance(value, (int, np.integer)) or isinstance(value, bool):
-                raise TypeError(not_allowed(path, value, allowed))
-            number: float = int(value)
-        else:
-            if not isinstance(value, (int, float, np.integer, np.floating)) or isinstance(value, bool):
-                raise TypeError(not_allowed(path, value, allowed))
-            number = float(value)
-            if not math.isfinite(number):
-                raise ValueError(not_allowed(path, value, allowed))
-        if self.low is not None and (number < self.low or (self.low_open and number == self.low)):
-            raise ValueError(not_allowed(path, value, allowed))
-        if self.high is not None and (number > self.high or (self.high_open and number == self.high)):
-            raise ValueError(not_allowed(path, value, allowed))
-        return int(number) if self.kind == "int" else float(number)
-
 
 class Decoder(ABC):
     """Predicts logical observable flips from detection events.

@@ -265,7 +265,9 @@ class BeliefOSD(BeliefDecoder):
     _method_key, _order_key, _orderless, _exhaustive = "osd_method", "osd_order", "osd0", "osd_e"
 
     def _build(self, matrices: CheckMatrices) -> Any:
-        from ldpc.bposd_decoder import BpOsdDecoder  # ldpc (and what it imports) only when used
+        from ldpc.bposd_decoder import (
+            BpOsdDecoder,  # ldpc (and what it imports) only when used
+        )
 
         return BpOsdDecoder(
             matrices.check, **self._bp_arguments(matrices),

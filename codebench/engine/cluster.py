@@ -20,10 +20,10 @@ from __future__ import annotations
 
 import importlib.util
 import re
-from dataclasses import dataclass, field
 from typing import Any
 
 from codebench.errors import CodebenchError, ConfigError, not_allowed
+from codebench.records import CLUSTER_WAYS, ClusterSpec
 
 #: ``batch_system`` names and the dask-jobqueue classes they start.
 BATCH_SYSTEMS = {
@@ -47,30 +47,8 @@ CLUSTER_KEYS = (
     "options",
     "connect_timeout",
 )
-_WAYS = ("scheduler", "local_workers", "batch_system")
 _ADDRESS = re.compile(r"(?:(?P<scheme>tcp|tls|ucx|ws|wss)://)?(?P<host>[A-Za-z0-9_.\-]+|\[[0-9A-Fa-f:.]+\]):(?P<port>\d+)")
 ADDRESS_ALLOWED = "a Dask scheduler address HOST:PORT such as 'tcp://head-node:8786' (port 1 to 65535)"
-
-
-@dataclass(frozen=True)
-class ClusterSpec:
-    """Validated ``[cluster]`` settings (see the module docstring)."""
-
-    scheduler: str | None = None
-    local_workers: int | None = None
-    threads_per_worker: int = 1
-    batch_system: str | None = None
-    jobs: int | None = None
-    adapt_minimum: int | None = None
-    adapt_maximum: int | None = None
-    options: dict[str, Any] = field(default_factory=dict)
-    #: Seconds to wait for the scheduler to answer.
-    connect_timeout: float = 30.0
-
-    @property
-    def way(self) -> str:
-        """``"scheduler"``, ``"local_workers"`` or ``"batch_system"``."""
-        return next(w for w in _WAYS if getattr(self, w) is not None)
 
 
 def scheduler_address(value: object, path: str) -> str:
@@ -94,7 +72,7 @@ def parse_cluster(table: object) -> ClusterSpec:
     unknown = [key for key in table if key not in CLUSTER_KEYS]
     if unknown:
         raise ConfigError(f"cluster.{unknown[0]} is not a known key; allowed keys: {', '.join(CLUSTER_KEYS)}.")
-    ways = [w for w in _WAYS if w in table]
+    ways = [w for w in CLUSTER_WAYS if w in table]
     if len(ways) != 1:
         raise ConfigError(not_allowed("cluster", ", ".join(ways) or "none of them",
                                       "exactly one of scheduler, local_workers, batch_system"))

@@ -28,22 +28,21 @@ import uuid
 from concurrent.futures import CancelledError
 from typing import Any, Callable
 
-from codebench.engine.cluster import BATCH_SYSTEMS, ClusterSpec, require_packages
-from codebench.engine.jobqueue_options import check_option_names, import_jobqueue
+# Imported only when a sweep runs on a cluster (after cluster.require_packages).
+import dask
+import distributed
+
+from codebench.engine.cluster import BATCH_SYSTEMS, require_packages
 from codebench.engine.executors import Executor
+from codebench.engine.jobqueue_options import check_option_names, import_jobqueue
 from codebench.engine.worker import (
-    BatchResult,
-    BatchTask,
     EnvironmentMismatch,
     environment,
     environment_difference,
     run_batch_checked,
 )
 from codebench.errors import ClusterError, CodebenchError, ConfigError
-
-# Imported only when a sweep runs on a cluster (after cluster.require_packages).
-import dask
-import distributed
+from codebench.records import BatchResult, BatchTask, ClusterSpec
 
 #: Resubmissions of one batch after the scheduler gave up on it (KilledWorker).
 RESUBMITS = 2

@@ -16,8 +16,8 @@ from abc import ABC, abstractmethod
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from typing import ClassVar
 
-from codebench.engine.cluster import ClusterSpec
-from codebench.engine.worker import BatchResult, BatchTask, run_batch
+from codebench.engine.worker import run_batch
+from codebench.records import BatchResult, BatchTask, ClusterSpec
 
 
 class Executor(ABC):
@@ -139,7 +139,9 @@ class LocalExecutor(Executor):
 def make_executor(workers: int | None, cluster: ClusterSpec | None = None) -> Executor:
     """The executor for a Dask ``cluster`` if given, else for ``workers`` local workers (all cores when ``None``)."""
     if cluster is not None:
-        from codebench.engine.dask_executor import start_dask_executor  # Dask is imported only when used
+        from codebench.engine.dask_executor import (
+            start_dask_executor,  # Dask is imported only when used
+        )
 
         return start_dask_executor(cluster)
     count = workers or os.cpu_count() or 1

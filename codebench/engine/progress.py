@@ -7,8 +7,8 @@ import time
 from dataclasses import dataclass
 from typing import Sequence, TextIO
 
-from codebench.engine.stopping import Stopping
-from codebench.engine.tally import Tally
+from codebench.records import Stopping
+from codebench.results.tally import Tally
 
 
 @dataclass(frozen=True)

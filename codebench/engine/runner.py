@@ -1,7 +1,7 @@
 """The coordinator: decides which batches to run and records what comes back.
 
 Batches of a point are submitted speculatively (several in flight, so all
-workers stay busy) but counted in batch order (:mod:`codebench.engine.tally`).
+workers stay busy) but counted in batch order (:mod:`codebench.results.tally`).
 Each finished batch is committed to the store at once, so an interrupt loses
 only the batches in flight, and a rerun picks up every stored batch.
 """
@@ -11,19 +11,25 @@ from __future__ import annotations
 import math
 import signal
 from dataclasses import dataclass, field
-from pathlib import Path
 from types import FrameType
 from typing import Iterator
 
+from codebench.build import noisy_circuit, qubit_count
 from codebench.engine.executors import Executor
-from codebench.engine.points import Point
 from codebench.engine.progress import PointStatus, Progress
-from codebench.engine.stopping import Stopping, batch_cap, batch_sizes
-from codebench.engine.tally import Tally, tally, usable_batches
-from codebench.engine.worker import BatchResult, BatchTask, batch_seed
+from codebench.engine.worker import batch_seed
 from codebench.errors import Interrupted
+from codebench.records import (
+    BatchResult,
+    BatchTask,
+    Point,
+    Stopping,
+    batch_cap,
+    batch_sizes,
+)
+from codebench.results.store import Store, StoredPoint
+from codebench.results.tally import Tally, tally, usable_batches
 from codebench.stats import Z95
-from codebench.store import Store, StoredPoint
 
 
 @dataclass
@@ -85,11 +91,11 @@ def _failures_needed(stopping: Stopping) -> float:
 
 def describe(point: Point, seed: int, batch_bytes: int) -> StoredPoint:
     """Key, size and batch cap of a point (builds its circuit once)."""
-    circuit = point.circuit()
+    circuit = noisy_circuit(point)
     return StoredPoint(
         key=point.key(seed),
         point=point,
-        qubits=point.qubit_count(),
+        qubits=qubit_count(point),
         detectors=circuit.num_detectors,
         batch_cap=batch_cap(circuit.num_detectors, batch_bytes),
     )

@@ -22,39 +22,14 @@ from typing import Any
 import numpy as np
 import stim
 
+from codebench.build import noisy_circuit
 from codebench.decoders import get_decoder
 from codebench.decoders.base import Decoder
 from codebench.engine.fault_sampling import FaultTable, fault_shots, sample_fault_sets
-from codebench.engine.points import Point
+from codebench.records import BatchResult, BatchTask, Point
 
 #: Compiled points a worker keeps (least recently used evicted first).
 CACHE_SIZE = 8
-
-
-@dataclass(frozen=True)
-class BatchTask:
-    """One batch of one point, self-contained so it can be shipped to any worker."""
-
-    point_key: str
-    params: dict[str, Any]
-    batch_index: int
-    shots: int
-    seed: int
-    #: ``None``: shots sampled from the circuit. An integer w: every shot has exactly w faults of the
-    #: point's detector error model (:mod:`codebench.engine.fault_sampling`), for rare-event estimates.
-    faults: int | None = None
-
-
-@dataclass(frozen=True)
-class BatchResult:
-    """Counts of one finished batch. ``seconds`` covers sampling and decoding."""
-
-    point_key: str
-    batch_index: int
-    shots: int
-    failures: int
-    seconds: float
-    decode_seconds: float
 
 
 @dataclass
@@ -97,7 +72,7 @@ def batch_seed(sweep_seed: int, point_key: str, batch_index: int, shots: int) ->
 def compile_point(params: dict[str, Any]) -> CompiledPoint:
     """Build the noisy circuit and compile the decoder for one point."""
     point = Point.from_params(params)
-    circuit = point.circuit()
+    circuit = noisy_circuit(point)
     decoder_cls = get_decoder(point.decoder)
     decoder = decoder_cls(**dict(point.decoder_options))
     dem = circuit.detector_error_model(decompose_errors=decoder_cls.wants_decomposed)

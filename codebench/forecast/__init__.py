@@ -22,7 +22,13 @@ and drift are not modelled; measured logical-qubit experiments take precedence.
 from __future__ import annotations
 
 from codebench.forecast.breakeven import idle_error
-from codebench.forecast.request import DEFAULT_DISTANCES, DEFAULT_SEED, DEFAULT_TARGETS, METHODS, ForecastRequest
+from codebench.forecast.request import (
+    DEFAULT_DISTANCES,
+    DEFAULT_SEED,
+    DEFAULT_TARGETS,
+    METHODS,
+    ForecastRequest,
+)
 from codebench.forecast.run import CAUTIONS, forecast, run_forecast
 from codebench.forecast.whatif import IMPROVABLE, improve_device, parse_improve
 

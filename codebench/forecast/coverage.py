@@ -17,9 +17,9 @@ from dataclasses import dataclass
 from typing import Callable
 
 from codebench.engine.executors import Executor
-from codebench.engine.points import Point
 from codebench.engine.worker import compile_point, count_failures
 from codebench.forecast.strata import sample_point
+from codebench.records import Point
 from codebench.stats import wilson_interval
 
 __all__ = ["Reference", "Trial", "direct_reference", "stratified_trials", "summarise"]

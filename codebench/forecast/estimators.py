@@ -27,7 +27,12 @@ from typing import Any, Sequence
 import numpy as np
 
 from codebench.analysis.projections import MAX_DISTANCE, distances_for_target
-from codebench.analysis.suppression import fit_lambda, lambda_pair, per_round_with_variance, weighted_fit
+from codebench.analysis.suppression import (
+    fit_lambda,
+    lambda_pair,
+    per_round_with_variance,
+    weighted_fit,
+)
 from codebench.codes import CODE_FAMILIES
 from codebench.forecast.rare_events import StratifiedEstimate
 from codebench.forecast.sampling import Sample

@@ -16,8 +16,11 @@ import math
 
 import numpy as np
 
-from codebench.engine.stopping import FIRST_BATCH
-from codebench.forecast.estimators import NEAR_THRESHOLD, Estimate, extrapolated_estimate
+from codebench.forecast.estimators import (
+    NEAR_THRESHOLD,
+    Estimate,
+    extrapolated_estimate,
+)
 from codebench.forecast.sampling import Sample, Sampler
 from codebench.noise.calibration import Device
 from codebench.noise.device import (
@@ -27,6 +30,7 @@ from codebench.noise.device import (
     DeviceNoise,
     depolarizing_from_infidelity,
 )
+from codebench.records import FIRST_BATCH
 
 __all__ = ["grid_scale", "sample_raised", "scale_cap"]
 

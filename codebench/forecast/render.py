@@ -32,7 +32,7 @@ import matplotlib
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from codebench.export import speed_verdict
+from codebench.results.export import speed_verdict
 
 __all__ = ["CSV_COLUMNS", "forecast_table", "forecast_figure", "write_outputs"]
 

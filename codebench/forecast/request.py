@@ -10,11 +10,11 @@ from typing import Callable, Mapping, Sequence
 import numpy as np
 
 from codebench.codes import CODE_FAMILIES
-from codebench.codes.layout import Basis
 from codebench.decoders import DECODERS
 from codebench.engine.executors import Executor
 from codebench.errors import ConfigError, not_allowed
 from codebench.forecast.whatif import check_improve
+from codebench.layout import Basis
 from codebench.noise.calibration import Device
 
 __all__ = ["DEFAULT_DISTANCES", "DEFAULT_SEED", "DEFAULT_TARGETS", "METHODS", "ForecastRequest", "parse_bases"]

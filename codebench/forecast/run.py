@@ -46,10 +46,8 @@ from typing import Any, Callable, Mapping, Sequence
 import numpy as np
 
 from codebench.codes import CODE_FAMILIES
-from codebench.codes.layout import Basis
 from codebench.engine.executors import Executor, make_executor
 from codebench.errors import ConfigError, not_allowed
-from codebench.export import decode_us_per_round
 from codebench.forecast import strata as strata_plan
 from codebench.forecast.breakeven import break_even
 from codebench.forecast.estimators import (
@@ -62,11 +60,19 @@ from codebench.forecast.estimators import (
 )
 from codebench.forecast.extrapolation import sample_raised, scale_cap
 from codebench.forecast.plan import WorkBudget
-from codebench.forecast.request import DEFAULT_DISTANCES, DEFAULT_SEED, DEFAULT_TARGETS, ForecastRequest, parse_bases
+from codebench.forecast.request import (
+    DEFAULT_DISTANCES,
+    DEFAULT_SEED,
+    DEFAULT_TARGETS,
+    ForecastRequest,
+    parse_bases,
+)
 from codebench.forecast.sampling import Sample, Sampler, SharedPool
 from codebench.forecast.whatif import improve_device
+from codebench.layout import Basis
 from codebench.noise.calibration import Device, load_device
 from codebench.noise.device import DeviceNoise
+from codebench.results.export import decode_us_per_round
 from codebench.stats import wilson_interval
 
 __all__ = ["CAUTIONS", "forecast", "run_forecast"]

@@ -19,8 +19,8 @@ from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 from codebench.engine.executors import Executor
-from codebench.engine.worker import BatchResult, BatchTask
 from codebench.forecast.plan import WorkBudget
+from codebench.records import BatchResult, BatchTask
 
 __all__ = ["Sample", "Sampler", "SharedPool"]
 

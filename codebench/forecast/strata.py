@@ -38,11 +38,10 @@ from typing import Any, Callable
 
 import numpy as np
 
+from codebench.build import noisy_circuit
 from codebench.decoders import get_decoder
 from codebench.engine.executors import Executor
 from codebench.engine.fault_sampling import FaultTable, fault_batch_seed
-from codebench.engine.points import Point
-from codebench.engine.worker import BatchResult, BatchTask
 from codebench.forecast.rare_events import (
     StratifiedEstimate,
     fit_spectrum,
@@ -53,6 +52,7 @@ from codebench.forecast.rare_events import (
 )
 from codebench.forecast.sampling import HardStop
 from codebench.forecast.tables import find_reusable, save_table
+from codebench.records import BatchResult, BatchTask, Point
 
 __all__ = ["FAILURE_TARGET", "PointStrata", "StrataRun", "plan_window", "sample_point"]
 
@@ -250,7 +250,7 @@ def sample_point(point: Point, seed: int, executor: Executor, share: float, say:
     table is stored for later what-ifs (:mod:`codebench.forecast.tables`).
     """
     decoder_cls = get_decoder(point.decoder)
-    table = FaultTable.from_dem(point.circuit().detector_error_model(decompose_errors=decoder_cls.wants_decomposed))
+    table = FaultTable.from_dem(noisy_circuit(point).detector_error_model(decompose_errors=decoder_cls.wants_decomposed))
     run = StrataRun(point.key(seed), point.params(), seed, executor, stopped, table.num_detectors)
     structure = table.structure_digest()
     decoder_params = {"decoder": point.decoder, "options": dict(point.decoder_options), "code": point.code,

@@ -32,8 +32,8 @@ from typing import Any
 
 import numpy as np
 
-from codebench.engine.worker import BatchResult
 from codebench.forecast.rare_events import REUSE_TOLERANCE, odds_spread
+from codebench.records import BatchResult
 
 __all__ = ["SavedTable", "find_reusable", "save_table"]
 

@@ -4,7 +4,12 @@ from __future__ import annotations
 
 from codebench.noise.base import NoiseModel
 from codebench.noise.device import DeviceNoise
-from codebench.noise.standard import SI1000, CircuitDepolarizing, CodeCapacity, Phenomenological
+from codebench.noise.standard import (
+    SI1000,
+    CircuitDepolarizing,
+    CodeCapacity,
+    Phenomenological,
+)
 
 NOISE_MODELS: dict[str, type[NoiseModel]] = {}
 

@@ -32,14 +32,22 @@ qubits onto device qubits (``[[layouts]]``); defaults otherwise.
 from __future__ import annotations
 
 import math
-from typing import Any, ClassVar
+from collections.abc import Mapping
+from pathlib import Path
+from typing import ClassVar
 
 import stim
 
 from codebench.circuits import GateSet, IdealCircuit, Layer, NoiseOp
 from codebench.errors import DeviceFileError
-from codebench.noise.base import NoiseModel, flip_for, idle_qubits
-from codebench.noise.calibration import Device, QubitCalibration, device_from_json
+from codebench.noise.base import NoiseModel, RateMeaning, flip_for, idle_qubits
+from codebench.noise.calibration import (
+    Device,
+    QubitCalibration,
+    device_from_json,
+    load_device,
+)
+from codebench.options import OptionSpec
 
 #: Largest valid total probability of stim's DEPOLARIZE1 / DEPOLARIZE2 and of a flip.
 MAX_DEPOLARIZE1, MAX_DEPOLARIZE2, MAX_FLIP = 0.75, 15 / 16, 0.5
@@ -86,17 +94,34 @@ class DeviceNoise(NoiseModel):
 
     name = "device"
     p_max: ClassVar[float] = 100.0
+    rate = RateMeaning("scale", "device scale factor (multiplies every error rate)", "scale", default=(1.0,))
+    option_specs: ClassVar[dict[str, OptionSpec]] = {
+        "device": OptionSpec("text", "", "the calibration as canonical JSON, read from the study's device file"),
+    }
+    source_key = "device"
+    has_round_duration = True
 
     def __init__(self, p: float, **options: str) -> None:
-        super().__init__(p)
-        if "device" not in options:
+        if not options.get("device"):
             raise DeviceFileError("device noise needs a device file (the study's `device` key).")
+        super().__init__(p, **options)
         self.device_json = options["device"]
         self.device: Device = device_from_json(self.device_json)
         self._map: dict[int, str | None] = {}
 
-    def get_params(self) -> dict[str, Any]:
-        return {"noise": self.name, "p": self.p, "noise_options": {"device": self.device_json}}
+    @classmethod
+    def options_from_source(cls, path: Path) -> dict[str, str]:
+        """The device file at ``path``, checked and in canonical form (its content defines the point)."""
+        return {"device": load_device(path).canonical_json()}
+
+    @classmethod
+    def display_options(cls, options: Mapping[str, str]) -> dict[str, str]:
+        """The device by name and content digest, ``"name [digest]"``, not its whole calibration."""
+        shown = dict(options)
+        if "device" in shown:
+            device = device_from_json(shown["device"])
+            shown["device"] = f"{device.name} [{device.digest()}]"
+        return shown
 
     def circuit_gate_set(self) -> GateSet:
         return "cz" if self.device.native_2q == "cz" else "cx"

@@ -11,6 +11,7 @@ from typing import ClassVar
 
 from codebench.circuits import GateSet, IdealCircuit, Layer, NoiseOp
 from codebench.noise.base import NoiseModel, flip_for, idle_qubits
+from codebench.options import OptionSpec
 
 
 def _data_channel(model: NoiseModel, ideal: IdealCircuit) -> str:
@@ -18,6 +19,11 @@ def _data_channel(model: NoiseModel, ideal: IdealCircuit) -> str:
     if model.chosen["data_errors"] == "depolarize":
         return "DEPOLARIZE1"
     return "X_ERROR" if ideal.basis == "Z" else "Z_ERROR"
+
+
+#: How a data qubit is hit: a flip that the memory's basis detects, or a depolarizing channel.
+DATA_ERRORS = OptionSpec("choice", "flip", "flip: X (Z) flips for a Z (X) memory; depolarize: DEPOLARIZE1(p)",
+                         choices=("flip", "depolarize"))
 
 
 class CodeCapacity(NoiseModel):
@@ -31,7 +37,8 @@ class CodeCapacity(NoiseModel):
     """
 
     name = "code_capacity"
-    options: ClassVar[dict[str, tuple[str, ...]]] = {"data_errors": ("flip", "depolarize")}
+    option_specs: ClassVar[dict[str, OptionSpec]] = {"data_errors": DATA_ERRORS}
+    acts_once = True
 
     def layer_noise(self, layer: Layer, ideal: IdealCircuit) -> tuple[list[NoiseOp], list[NoiseOp]]:
         if layer.opens_round and layer.round == 0:
@@ -51,7 +58,7 @@ class Phenomenological(NoiseModel):
     """
 
     name = "phenomenological"
-    options: ClassVar[dict[str, tuple[str, ...]]] = {"data_errors": ("flip", "depolarize")}
+    option_specs: ClassVar[dict[str, OptionSpec]] = {"data_errors": DATA_ERRORS}
 
     def layer_noise(self, layer: Layer, ideal: IdealCircuit) -> tuple[list[NoiseOp], list[NoiseOp]]:
         if layer.opens_round and layer.round < ideal.rounds:

@@ -5,7 +5,7 @@ Tables: ``meta`` (what wrote the file, the stopping rule of the latest run),
 (the points of the latest run, in grid order, with their study label) and
 ``batches`` (one row per finished batch, written in its own transaction).
 Counts are never stored as totals: they are recomputed from the batch rows
-(:mod:`codebench.engine.tally`), so an interrupted run loses at most the
+(:mod:`codebench.results.tally`), so an interrupted run loses at most the
 batches in flight and can never count one twice.
 """
 
@@ -17,10 +17,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterator
 
-from codebench.engine.points import Point
-from codebench.engine.stopping import Stopping
-from codebench.engine.worker import BatchResult
 from codebench.errors import StoreError
+from codebench.records import BatchResult, Point, Stopping
 
 #: Written into the SQLite header so a foreign file is recognised ("CBNC").
 APPLICATION_ID = 0x43424E43

@@ -10,11 +10,11 @@ from pathlib import Path
 
 import pandas as pd
 
-from codebench.engine.stopping import batch_sizes
-from codebench.engine.tally import tally, usable_batches
-from codebench.noise.calibration import device_from_json
+from codebench.noise import NOISE_MODELS
+from codebench.records import batch_sizes
+from codebench.results.store import Store
+from codebench.results.tally import tally, usable_batches
 from codebench.stats import binomial_interval, per_round
-from codebench.store import Store
 
 #: The fixed columns, in order; more follow them.
 COLUMNS = [
@@ -28,12 +28,10 @@ EXTRA_COLUMNS = [
 ]
 
 
-def _options_column(options: dict[str, str]) -> str:
-    """Noise options as JSON; a device is named by its name and content digest, not its whole file."""
-    if "device" in options:
-        device = device_from_json(options["device"])
-        options = {**options, "device": f"{device.name} [{device.digest()}]"}
-    return json.dumps(options, sort_keys=True)
+def _options_column(noise: str, options: dict[str, str]) -> str:
+    """Noise options as JSON, as the model shows them (a device by its name and content digest)."""
+    model = NOISE_MODELS.get(noise)
+    return json.dumps(model.display_options(options) if model is not None else options, sort_keys=True)
 
 
 def decode_us_per_round(decode_seconds: float, shots: int, rounds: int) -> float:
@@ -93,7 +91,7 @@ def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
             "decode_seconds": t.decode_seconds,
             "decode_us_per_round": decode_us_per_round(t.decode_seconds, t.shots, point.rounds),
             "batches": t.batches, "complete": t.finished, "interval": interval,
-            "noise_options": _options_column(dict(point.noise_options)),
+            "noise_options": _options_column(point.noise, dict(point.noise_options)),
             "decoder_options": json.dumps(dict(point.decoder_options), sort_keys=True),
             "key": member.key,
         })

@@ -12,8 +12,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Iterable
 
-from codebench.engine.stopping import Stopping
-from codebench.engine.worker import BatchResult
+from codebench.records import BatchResult, Stopping
 
 
 @dataclass(frozen=True)

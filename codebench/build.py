@@ -1,0 +1,42 @@
+"""Point -> circuit: the one place a point becomes the circuit the engine samples.
+
+Workers, the coordinator's description of a point, the report, the forecast
+and the check suites all call :func:`noisy_circuit`, so what is checked is
+exactly what is sampled. The code family builds the ideal layered circuit in
+the gate set the noise model asks for; the noise model decorates it.
+"""
+
+from __future__ import annotations
+
+import stim
+
+from codebench.circuits import IdealCircuit
+from codebench.codes import get_code_family
+from codebench.noise import get_noise_model
+from codebench.noise.base import NoiseModel
+from codebench.records import Point
+
+__all__ = ["ideal_circuit", "noise_model", "noisy_circuit", "qubit_count"]
+
+
+def noise_model(point: Point) -> NoiseModel:
+    """The point's noise model, constructed from its rate and options."""
+    return get_noise_model(point.noise)(point.p, **dict(point.noise_options))
+
+
+def ideal_circuit(point: Point, model: NoiseModel | None = None) -> IdealCircuit:
+    """The noiseless layered memory experiment of ``point``, in its noise model's gate set."""
+    model = model or noise_model(point)
+    family = get_code_family(point.code)
+    return family.ideal_circuit(point.distance, point.rounds, point.basis, model.circuit_gate_set())
+
+
+def noisy_circuit(point: Point) -> stim.Circuit:
+    """The noisy memory-experiment circuit of ``point``: what the engine samples."""
+    model = noise_model(point)
+    return model.decorate(ideal_circuit(point, model))
+
+
+def qubit_count(point: Point) -> int:
+    """Physical qubits the point's code patch uses (data, measure and flag qubits)."""
+    return get_code_family(point.code).qubit_count(point.distance)

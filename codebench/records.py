@@ -1,0 +1,211 @@
+"""The records every stage passes on: points, stopping rules, batches, cluster settings.
+
+This module is the bottom of the package: it imports nothing of codebench
+but the layout's basis type and the interval used by the precision rule, so
+config, engine, results store, export, forecast and the check suites can all
+share these types without importing one another. A record holds data and
+pure functions of it; turning a point into a circuit is
+:func:`codebench.build.noisy_circuit`.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from dataclasses import dataclass, field
+from typing import Any
+
+from codebench.layout import Basis
+from codebench.stats import wilson_interval
+
+__all__ = ["BatchResult", "BatchTask", "ClusterSpec", "Point", "Stopping", "batch_cap", "batch_sizes"]
+
+
+# ---------------------------------------------------------------------------
+# points
+
+@dataclass(frozen=True)
+class Point:
+    """One (code, distance, rounds, basis, noise, p, decoder) combination.
+
+    ``params()`` is the canonical description: it is what is hashed into the
+    key, stored, and shipped to workers. ``study`` labels the row in tables
+    but is not part of the key, so two studies sharing a point share its shots.
+    """
+
+    code: str
+    distance: int
+    rounds: int
+    basis: Basis
+    noise: str
+    p: float
+    decoder: str
+    noise_options: tuple[tuple[str, str], ...] = ()
+    decoder_options: tuple[tuple[str, Any], ...] = ()
+    study: str = field(default="", compare=False)
+
+    def params(self) -> dict[str, Any]:
+        return {
+            "code": self.code,
+            "distance": self.distance,
+            "rounds": self.rounds,
+            "basis": self.basis,
+            "noise": self.noise,
+            "p": self.p,
+            "noise_options": dict(self.noise_options),
+            "decoder": self.decoder,
+            "decoder_options": dict(self.decoder_options),
+        }
+
+    def key(self, seed: int) -> str:
+        """Stable 16-hex-digit key of the point under sweep ``seed``."""
+        canonical = json.dumps({"seed": seed, **self.params()}, sort_keys=True, separators=(",", ":"))
+        return hashlib.sha256(canonical.encode()).hexdigest()[:16]
+
+    @classmethod
+    def from_params(cls, params: dict[str, Any], study: str = "") -> Point:
+        return cls(
+            code=params["code"],
+            distance=int(params["distance"]),
+            rounds=int(params["rounds"]),
+            basis=params["basis"],
+            noise=params["noise"],
+            p=float(params["p"]),
+            decoder=params["decoder"],
+            noise_options=tuple(sorted(params.get("noise_options", {}).items())),
+            decoder_options=tuple(sorted(params.get("decoder_options", {}).items())),
+            study=study,
+        )
+
+    def label(self) -> str:
+        return f"{self.code} d={self.distance} r={self.rounds} {self.basis} {self.noise} p={self.p:g} {self.decoder}"
+
+
+# ---------------------------------------------------------------------------
+# stopping rule and batch schedule
+
+#: First batch size; batches double up to FAST_GROWTH_LIMIT, then grow by a quarter.
+FIRST_BATCH = 1024
+#: Above this size batches grow by 25% only, so the last batch of a point (run
+#: past the moment its stopping rule is met) wastes little work.
+FAST_GROWTH_LIMIT = 8192
+#: Upper bound on the bytes of bit-packed detection events one batch may hold.
+DEFAULT_BATCH_BYTES = 32 * 1024 * 1024
+#: Upper bound on shots per batch, whatever the circuit size.
+MAX_BATCH_SHOTS = 1 << 18
+
+
+@dataclass(frozen=True)
+class Stopping:
+    """Stop a point at whichever comes first.
+
+    ``failure_target``: logical failures observed; ``shot_budget``: shots
+    taken; ``relative_precision``: half-width of the 95% Wilson interval
+    divided by the failure rate (only once at least one failure is seen).
+    """
+
+    failure_target: int | None = 200
+    shot_budget: int = 1_000_000
+    relative_precision: float | None = None
+
+    def done(self, shots: int, failures: int) -> bool:
+        if shots >= self.shot_budget:
+            return True
+        if self.failure_target is not None and failures >= self.failure_target:
+            return True
+        if self.relative_precision is not None and failures > 0:
+            low, high = wilson_interval(failures, shots)
+            rate = failures / shots
+            if (high - low) / 2 <= self.relative_precision * rate:
+                return True
+        return False
+
+
+def batch_cap(num_detectors: int, batch_bytes: int = DEFAULT_BATCH_BYTES) -> int:
+    """Largest batch whose bit-packed detection events fit in ``batch_bytes`` (at least one shot).
+
+    >>> batch_cap(3360), batch_cap(3360, 1_000_000)
+    (79891, 2380)
+    """
+    per_shot = max(1, (num_detectors + 7) // 8)
+    return max(1, min(MAX_BATCH_SHOTS, batch_bytes // per_shot))
+
+
+def batch_sizes(shot_budget: int, cap: int) -> list[int]:
+    """Sizes of batches 0, 1, 2, ...: growing from FIRST_BATCH up to ``cap``, truncated at the budget.
+
+    A pure function of its arguments, so every run and worker count sees the
+    same batches.
+
+    >>> batch_sizes(5000, 2048)
+    [1024, 2048, 1928]
+    >>> batch_sizes(40000, 1 << 20)
+    [1024, 2048, 4096, 8192, 10240, 12800, 1600]
+    """
+    sizes: list[int] = []
+    total = 0
+    size = min(FIRST_BATCH, cap)
+    while total < shot_budget:
+        take = min(size, shot_budget - total)
+        sizes.append(take)
+        total += take
+        size = min(size * 2 if size < FAST_GROWTH_LIMIT else size + size // 4, cap)
+    return sizes
+
+
+# ---------------------------------------------------------------------------
+# batches
+
+
+@dataclass(frozen=True)
+class BatchTask:
+    """One batch of one point, self-contained so it can be shipped to any worker."""
+
+    point_key: str
+    params: dict[str, Any]
+    batch_index: int
+    shots: int
+    seed: int
+    #: ``None``: shots sampled from the circuit. An integer w: every shot has exactly w faults of the
+    #: point's detector error model (:mod:`codebench.engine.fault_sampling`), for rare-event estimates.
+    faults: int | None = None
+
+
+@dataclass(frozen=True)
+class BatchResult:
+    """Counts of one finished batch. ``seconds`` covers sampling and decoding."""
+
+    point_key: str
+    batch_index: int
+    shots: int
+    failures: int
+    seconds: float
+    decode_seconds: float
+
+
+# ---------------------------------------------------------------------------
+# cluster settings
+
+#: The three ways to reach Dask workers (exactly one per sweep; see :mod:`codebench.engine.cluster`).
+CLUSTER_WAYS = ("scheduler", "local_workers", "batch_system")
+
+
+@dataclass(frozen=True)
+class ClusterSpec:
+    """Validated ``[cluster]`` settings (see the module docstring)."""
+
+    scheduler: str | None = None
+    local_workers: int | None = None
+    threads_per_worker: int = 1
+    batch_system: str | None = None
+    jobs: int | None = None
+    adapt_minimum: int | None = None
+    adapt_maximum: int | None = None
+    options: dict[str, Any] = field(default_factory=dict)
+    #: Seconds to wait for the scheduler to answer.
+    connect_timeout: float = 30.0
+
+    @property
+    def way(self) -> str:
+        """``"scheduler"``, ``"local_workers"`` or ``"batch_system"``."""
+        return next(w for w in CLUSTER_WAYS if getattr(self, w) is not None)
