@@ -8,7 +8,7 @@ import platform
 import sys
 from importlib import metadata
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any, Callable, Mapping
 
 import pandas as pd
 
@@ -56,6 +56,7 @@ def run_sweep(
     executor: Executor | None = None,
     progress: bool = True,
     scheduler: str | None = None,
+    stop_when: Callable[[], bool] | None = None,
 ) -> pd.DataFrame:
     """Run (or resume) a sweep and return its results table.
 
@@ -71,12 +72,16 @@ def run_sweep(
         runs locally even when the sweep has a ``[cluster]`` section.
     executor : Executor, optional
         Where batches run (for example an in-process executor in tests);
-        overrides ``workers``, ``scheduler`` and ``[cluster]``.
+        overrides ``workers``, ``scheduler`` and ``[cluster]``. It stays
+        open: whoever created it closes it.
     progress : bool
         Show the progress line on standard error.
     scheduler : str, optional
         Address of a running Dask scheduler (``tcp://host:8786``); overrides
         the sweep's ``[cluster]`` section. The counts are those of a local run.
+    stop_when : callable, optional
+        Asked between rounds of results; once it returns true the run ends
+        early (the stored batches stay; a rerun resumes).
 
     Examples
     --------
@@ -90,7 +95,7 @@ def run_sweep(
     """
     with StopSignals():
         sweep = as_sweep(config)
-        return _run(sweep, out, executor, progress, _cluster_choice(sweep, workers, scheduler))
+        return _run(sweep, out, executor, progress, _cluster_choice(sweep, workers, scheduler), stop_when)
 
 
 def _cluster_choice(sweep: Sweep, workers: int | None, scheduler: str | None) -> tuple[int | None, ClusterSpec | None]:
@@ -106,7 +111,7 @@ def _cluster_choice(sweep: Sweep, workers: int | None, scheduler: str | None) ->
 
 
 def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progress: bool,
-         where: tuple[int | None, ClusterSpec | None]) -> pd.DataFrame:
+         where: tuple[int | None, ClusterSpec | None], stop_when: Callable[[], bool] | None) -> pd.DataFrame:
     folder = Path(out) if out is not None else sweep.output_dir_default
     # Everything that can fail on bad input happens before the folder is touched.
     members = [(describe(point, sweep.seed, sweep.batch_bytes), point.study) for point in sweep.points]
@@ -121,14 +126,10 @@ def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progre
     lock = RunLock(folder)  # one writer per folder; refused while another live run holds it
     lock.acquire()
     try:
-        run_executor = executor if executor is not None else make_executor(*where)
-        try:
-            if progress and run_executor.summary():
-                print(f"{sweep.name}: running on {run_executor.summary()}", file=sys.stderr)
-            return _record(sweep, folder, members, run_executor, progress)
-        finally:
-            if executor is None:  # ours: already closed after a run, not yet if it failed before one
-                run_executor.close(wait=False)
+        if executor is not None:  # the caller's: it stays open
+            return _record(sweep, folder, members, executor, progress, stop_when)
+        with make_executor(*where) as own:
+            return _record(sweep, folder, members, own, progress, stop_when)
     finally:
         lock.release()
         if fresh and not store_path.exists():  # failed before any result (cluster unreachable...): leave no trace
@@ -138,7 +139,9 @@ def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progre
 
 
 def _record(sweep: Sweep, folder: Path, members: list[tuple[StoredPoint, str]], run_executor: Executor,
-            progress: bool) -> pd.DataFrame:
+            progress: bool, stop_when: Callable[[], bool] | None) -> pd.DataFrame:
+    if progress and run_executor.summary():
+        print(f"{sweep.name}: running on {run_executor.summary()}", file=sys.stderr)
     parallelism = max(1, run_executor.capacity // 2)
     with Store(folder / STORE_NAME) as store:
         meta = {"name": sweep.name, "seed": str(sweep.seed), "sweep_text": sweep.source_text,
@@ -146,7 +149,8 @@ def _record(sweep: Sweep, folder: Path, members: list[tuple[StoredPoint, str]], 
         store.begin_run(sweep.stopping, members, meta)
         reporter = Progress(sweep.name, sweep.stopping, parallelism) if progress else None
         try:
-            execute(RunPlan(sweep.name, sweep.seed, sweep.stopping, members), store, run_executor, reporter)
+            execute(RunPlan(sweep.name, sweep.seed, sweep.stopping, members), store, run_executor, reporter,
+                    stop_when)
         finally:
             frame = results_frame(store)
             write_csv(frame, folder / CSV_NAME)

@@ -12,11 +12,13 @@ import stim
 
 from codebench.circuits import IdealCircuit
 from codebench.codes import get_code_family
+from codebench.codes.base import CodeFamily
+from codebench.layout import Basis
 from codebench.noise import get_noise_model
 from codebench.noise.base import NoiseModel
 from codebench.records import Point
 
-__all__ = ["ideal_circuit", "noise_model", "noisy_circuit", "qubit_count"]
+__all__ = ["family_ideal_circuit", "ideal_circuit", "noise_model", "noisy_circuit", "qubit_count"]
 
 
 def noise_model(point: Point) -> NoiseModel:
@@ -26,15 +28,20 @@ def noise_model(point: Point) -> NoiseModel:
 
 def ideal_circuit(point: Point, model: NoiseModel | None = None) -> IdealCircuit:
     """The noiseless layered memory experiment of ``point``, in its noise model's gate set."""
-    model = model or noise_model(point)
-    family = get_code_family(point.code)
-    return family.ideal_circuit(point.distance, point.rounds, point.basis, model.circuit_gate_set())
+    return family_ideal_circuit(get_code_family(point.code), model or noise_model(point), point.distance,
+                                point.rounds, point.basis)
 
 
 def noisy_circuit(point: Point) -> stim.Circuit:
     """The noisy memory-experiment circuit of ``point``: what the engine samples."""
     model = noise_model(point)
     return model.decorate(ideal_circuit(point, model))
+
+
+def family_ideal_circuit(family: CodeFamily, model: NoiseModel, distance: int, rounds: int,
+                         basis: Basis) -> IdealCircuit:
+    """The ideal circuit of a code family in ``model``'s gate set (also for plug-ins not registered yet)."""
+    return family.ideal_circuit(distance, rounds, basis, model.circuit_gate_set())
 
 
 def qubit_count(point: Point) -> int:

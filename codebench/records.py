@@ -169,6 +169,9 @@ class BatchTask:
     #: ``None``: shots sampled from the circuit. An integer w: every shot has exactly w faults of the
     #: point's detector error model (:mod:`codebench.engine.fault_sampling`), for rare-event estimates.
     faults: int | None = None
+    #: The point's detector error model, compressed (:func:`codebench.engine.models.pack_model`), so a
+    #: remote worker need not derive it from the circuit; ``None``: the worker derives it.
+    model: bytes | None = field(default=None, repr=False, compare=False)
 
 
 @dataclass(frozen=True)

@@ -26,7 +26,8 @@ from typing import Any, Callable
 
 from codebench.api import run_sweep
 from codebench.engine.dask_executor import start_dask_executor
-from codebench.engine.executors import Executor, LocalExecutor
+from codebench.engine.executor import Executor
+from codebench.engine.local import LocalExecutor
 from codebench.records import ClusterSpec
 
 WORKERS = 2
@@ -46,9 +47,9 @@ def timed_run(make: Callable[[], Executor], config: dict[str, Any]) -> tuple[flo
     start = time.perf_counter()
     executor = make()
     ready = time.perf_counter()
-    with tempfile.TemporaryDirectory() as out:
+    with executor, tempfile.TemporaryDirectory() as out:
         frame = run_sweep(config, out=Path(out), executor=executor, progress=False)
-    done = time.perf_counter()
+        done = time.perf_counter()
     counts = [(int(s), int(f)) for s, f in zip(frame["shots"], frame["failures"])]
     return ready - start, done - ready, counts
 

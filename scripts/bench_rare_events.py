@@ -35,7 +35,7 @@ from pathlib import Path
 import psutil
 
 from codebench.config import parse_sweep
-from codebench.engine.executors import LocalExecutor
+from codebench.engine.local import LocalExecutor
 from codebench.engine.worker import compile_point, count_failures
 from codebench.forecast.strata import sample_point
 from codebench.records import Point

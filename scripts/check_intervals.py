@@ -26,7 +26,7 @@ import argparse
 from pathlib import Path
 
 from codebench.config import parse_sweep
-from codebench.engine.executors import InProcessExecutor
+from codebench.engine.local import InProcessExecutor
 from codebench.forecast import forecast
 from codebench.forecast.coverage import (
     Trial,

@@ -45,7 +45,7 @@ from codebench.engine.dask_executor import (
     batch_system_cluster,
     start_dask_executor,
 )
-from codebench.engine.executors import InProcessExecutor
+from codebench.engine.local import InProcessExecutor
 from codebench.errors import CodebenchError, ConfigError
 from codebench.records import ClusterSpec
 
@@ -123,7 +123,8 @@ def run_killing_one_worker(sweep_file: Path, out: Path, client: Client) -> tuple
 
     thread = threading.Thread(target=killer, daemon=True)
     thread.start()
-    frame = run_sweep(sweep_file, out=out, executor=executor, progress=False)
+    with executor:
+        frame = run_sweep(sweep_file, out=out, executor=executor, progress=False)
     thread.join(timeout=60)
     assert killed, "the sweep finished before a worker could be killed"
     return frame, killed[0], executor
@@ -181,8 +182,8 @@ def test_threads_sharing_a_worker_give_the_same_counts(sweep_file: Path, referen
                                                         tmp_path: Path) -> None:
     # Two batches of one point at once in one worker process: each thread has its own
     # compiled decoder (a decoder object is not shared between threads).
-    executor = start_dask_executor(ClusterSpec(local_workers=1, threads_per_worker=2))
-    frame = run_sweep(sweep_file, out=tmp_path, executor=executor, progress=False)
+    with start_dask_executor(ClusterSpec(local_workers=1, threads_per_worker=2)) as executor:
+        frame = run_sweep(sweep_file, out=tmp_path, executor=executor, progress=False)
     assert counts(frame) == counts(reference[1])
 
 
@@ -207,8 +208,8 @@ def test_batch_the_scheduler_gives_up_on_is_resubmitted(tmp_path: Path, monkeypa
         with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=":0") as local:
             with Client(local) as strict:
                 strict.wait_for_workers(2, timeout=60)
-                executor = DaskExecutor(strict)
-                frame = run_sweep(study_file, out=tmp_path / "dask", executor=executor, progress=False)
+                with DaskExecutor(strict) as executor:
+                    frame = run_sweep(study_file, out=tmp_path / "dask", executor=executor, progress=False)
     assert marker.exists(), "no worker died"
     assert executor.resubmitted >= 1
     # The same sweep in process (the marker now exists: nothing dies) gives the same counts.

@@ -17,7 +17,7 @@ from pathlib import Path
 import pytest
 
 from codebench.config import parse_sweep
-from codebench.engine.executors import InProcessExecutor
+from codebench.engine.local import InProcessExecutor
 from codebench.forecast import forecast
 from codebench.forecast.coverage import (
     Trial,

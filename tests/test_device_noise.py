@@ -31,7 +31,7 @@ import stim
 
 from codebench.api import run_sweep
 from codebench.build import noisy_circuit
-from codebench.engine.executors import InProcessExecutor
+from codebench.engine.local import InProcessExecutor
 from codebench.errors import CodebenchError, DeviceFileError
 from codebench.layout import Basis
 from codebench.noise.calibration import load_device, parse_device

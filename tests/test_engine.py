@@ -45,7 +45,7 @@ import pytest
 import stim
 
 from codebench.api import load_results, run_sweep
-from codebench.engine.executors import InProcessExecutor, LocalExecutor
+from codebench.engine.local import InProcessExecutor, LocalExecutor
 from codebench.errors import CodebenchError
 from codebench.records import FIRST_BATCH, Point, batch_sizes
 
@@ -249,7 +249,8 @@ def grid_one(grid_file: Path, tmp_path_factory: pytest.TempPathFactory) -> tuple
 @pytest.fixture(scope="module")
 def grid_two(grid_file: Path, tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, pd.DataFrame]:
     out = tmp_path_factory.mktemp("grid_two")
-    return out, run_sweep(grid_file, out=out, executor=LocalExecutor(2), progress=False)
+    with LocalExecutor(2) as executor:
+        return out, run_sweep(grid_file, out=out, executor=executor, progress=False)
 
 
 @pytest.fixture(scope="module")

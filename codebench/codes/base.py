@@ -3,12 +3,10 @@
 from __future__ import annotations
 
 from abc import ABC, abstractmethod
-from typing import TYPE_CHECKING, ClassVar
+from typing import ClassVar
 
+from codebench.circuits import GateSet, IdealCircuit, build_memory
 from codebench.layout import Basis, Layout
-
-if TYPE_CHECKING:
-    from codebench.circuits import GateSet, IdealCircuit
 
 
 class CodeFamily(ABC):
@@ -37,6 +35,4 @@ class CodeFamily(ABC):
 
     def ideal_circuit(self, distance: int, rounds: int, basis: Basis, gate_set: GateSet) -> IdealCircuit:
         """The noiseless memory experiment; families with their own round structure override it."""
-        from codebench.circuits import build_memory
-
         return build_memory(self.layout(distance, basis), rounds, basis, gate_set)

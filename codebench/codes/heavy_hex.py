@@ -67,13 +67,18 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import lru_cache
-from typing import TYPE_CHECKING
 
+from codebench.circuits import (
+    FLAG_MARK,
+    Detector,
+    GateSet,
+    IdealCircuit,
+    LayerBuilder,
+    Op,
+    merge_hadamard_layers,
+)
 from codebench.codes.base import CodeFamily
 from codebench.layout import Basis, Check, Layout, Role
-
-if TYPE_CHECKING:
-    from codebench.circuits import GateSet, IdealCircuit
 
 
 @dataclass(frozen=True)
@@ -267,16 +272,6 @@ def build_heavy_hex_memory(
     final data readout); flag detectors have (x, y, t, FLAG_MARK), (x, y)
     the flag's position.
     """
-    # Imported here: codebench.circuits imports codebench.codes, which registers this family.
-    from codebench.circuits import (
-        FLAG_MARK,
-        Detector,
-        IdealCircuit,
-        LayerBuilder,
-        Op,
-        merge_hadamard_layers,
-    )
-
     if rounds < 1:
         raise ValueError(f"rounds must be >= 1; got {rounds}")
     s = structure(distance)

@@ -25,6 +25,7 @@ import sys
 import threading
 import time
 import uuid
+from collections.abc import Mapping
 from concurrent.futures import CancelledError
 from typing import Any, Callable
 
@@ -33,7 +34,7 @@ import dask
 import distributed
 
 from codebench.engine.cluster import BATCH_SYSTEMS, require_packages
-from codebench.engine.executors import Executor
+from codebench.engine.executor import Executor
 from codebench.engine.jobqueue_options import check_option_names, import_jobqueue
 from codebench.engine.worker import (
     EnvironmentMismatch,
@@ -65,6 +66,14 @@ class DaskExecutor(Executor):
     """
 
     name = "dask"
+
+    @classmethod
+    def create(cls, options: Mapping[str, Any]) -> DaskExecutor:
+        """Connect to (or start) the cluster of ``options["cluster"]``, a validated :class:`ClusterSpec`."""
+        spec = options.get("cluster")
+        if not isinstance(spec, ClusterSpec):
+            raise TypeError(f"the dask executor needs a ClusterSpec as option 'cluster'; got {spec!r}")
+        return start_dask_executor(spec)
 
     def __init__(self, client: Any, owned: list[Any] | None = None) -> None:
         self._client = client
@@ -216,6 +225,15 @@ class DaskExecutor(Executor):
 
     def in_flight(self) -> int:
         return len(self._tasks)
+
+    def abandon(self) -> None:
+        pending = list(self._tasks)
+        self._tasks.clear()
+        if pending:
+            try:
+                self._client.cancel(pending, force=True)
+            except Exception:  # best effort: an unread result is harmless
+                pass
 
     def close(self, wait: bool = True) -> None:
         if self._closed:

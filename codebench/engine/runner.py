@@ -12,10 +12,12 @@ import math
 import signal
 from dataclasses import dataclass, field
 from types import FrameType
-from typing import Iterator
+from typing import Callable, Iterator
 
-from codebench.build import noisy_circuit, qubit_count
+from codebench.build import qubit_count
+from codebench.decoders import get_decoder
 from codebench.engine.executors import Executor
+from codebench.engine.models import circuit_of, model_of, pack_model
 from codebench.engine.progress import PointStatus, Progress
 from codebench.engine.worker import batch_seed
 from codebench.errors import Interrupted
@@ -42,16 +44,26 @@ class PointRun:
     batches: dict[int, BatchResult]
     in_flight: set[int] = field(default_factory=set)
     tally: Tally = field(default_factory=Tally)
+    #: The packed detector error model shipped with this point's batches (built on first use).
+    model: bytes | None = None
 
     def refresh(self, stopping: Stopping) -> None:
         self.tally = tally(self.sizes, self.batches, stopping)
+        if self.tally.finished:
+            self.model = None
+
+    def packed_model(self) -> bytes:
+        if self.model is None:
+            params = self.stored.point.params()
+            self.model = pack_model(model_of(params, get_decoder(self.stored.point.decoder).wants_decomposed))
+        return self.model
 
     def known(self) -> tuple[int, int, float]:
         """Shots, failures and seconds of every usable stored batch."""
         results = self.batches.values()
         return (sum(r.shots for r in results), sum(r.failures for r in results), sum(r.seconds for r in results))
 
-    def next_task(self, stopping: Stopping) -> BatchTask | None:
+    def next_task(self, stopping: Stopping, ship: bool = False) -> BatchTask | None:
         """The next batch worth running now, or ``None``."""
         if self.tally.finished:
             return None
@@ -74,6 +86,7 @@ class PointRun:
             batch_index=index,
             shots=self.sizes[index],
             seed=batch_seed(self.seed, self.stored.key, index, self.sizes[index]),
+            model=self.packed_model() if ship else None,
         )
 
     def status(self) -> PointStatus:
@@ -90,8 +103,8 @@ def _failures_needed(stopping: Stopping) -> float:
 
 
 def describe(point: Point, seed: int, batch_bytes: int) -> StoredPoint:
-    """Key, size and batch cap of a point (builds its circuit once)."""
-    circuit = noisy_circuit(point)
+    """Key, size and batch cap of a point (builds its circuit, kept for an in-process worker)."""
+    circuit = circuit_of(point.params())
     return StoredPoint(
         key=point.key(seed),
         point=point,
@@ -128,10 +141,15 @@ class StopSignals:
             signal.signal(signal.SIGTERM, self._previous)
 
 
-def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress | None) -> list[PointRun]:
+def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress | None,
+            stop_when: Callable[[], bool] | None = None) -> list[PointRun]:
     """Run every point of ``plan`` to its stopping rule, committing each batch.
 
-    Call it inside :class:`StopSignals` so that SIGTERM stops it cleanly.
+    ``stop_when`` is asked after every round of results; once it says yes the
+    run ends early, like an interrupt but without raising (the stored batches
+    stay, so a rerun resumes). The executor stays open: its creator closes it.
+    Batches still in flight at the end (speculative ones, or after a stop) are
+    abandoned. Call it inside :class:`StopSignals` so that SIGTERM stops it cleanly.
     """
     stored = store.all_batches()
     runs: list[PointRun] = []
@@ -141,10 +159,13 @@ def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress 
         run.refresh(plan.stopping)
         runs.append(run)
     by_key = {run.stored.key: run for run in runs}
+    ship = executor.remote
     interrupted = False
     try:
         while not all(run.tally.finished for run in runs):
-            _fill(runs, plan.stopping, executor)
+            if stop_when is not None and stop_when():
+                break
+            _fill(runs, plan.stopping, executor, ship)
             for result in executor.completed(timeout=0.5):
                 run = by_key[result.point_key]
                 run.in_flight.discard(result.batch_index)
@@ -160,21 +181,21 @@ def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress 
         raise Interrupted("interrupted") from None
     finally:
         note = "" if interrupted else executor.note()
-        executor.close(wait=not interrupted)
+        executor.abandon()
         if progress is not None:
             progress.finish([r.status() for r in runs], note=note)
     return runs
 
 
-def _fill(runs: list[PointRun], stopping: Stopping, executor: Executor) -> None:
-    for task in _candidates(runs, stopping, executor):
+def _fill(runs: list[PointRun], stopping: Stopping, executor: Executor, ship: bool) -> None:
+    for task in _candidates(runs, stopping, executor, ship):
         executor.submit(task)
 
 
-def _candidates(runs: list[PointRun], stopping: Stopping, executor: Executor) -> Iterator[BatchTask]:
+def _candidates(runs: list[PointRun], stopping: Stopping, executor: Executor, ship: bool) -> Iterator[BatchTask]:
     for run in runs:
         while executor.in_flight() < executor.capacity:
-            task = run.next_task(stopping)
+            task = run.next_task(stopping, ship)
             if task is None:
                 break
             run.in_flight.add(task.batch_index)

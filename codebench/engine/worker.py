@@ -22,10 +22,10 @@ from typing import Any
 import numpy as np
 import stim
 
-from codebench.build import noisy_circuit
 from codebench.decoders import get_decoder
 from codebench.decoders.base import Decoder
 from codebench.engine.fault_sampling import FaultTable, fault_shots, sample_fault_sets
+from codebench.engine.models import circuit_of, model_of, unpack_model
 from codebench.records import BatchResult, BatchTask, Point
 
 #: Compiled points a worker keeps (least recently used evicted first).
@@ -69,24 +69,29 @@ def batch_seed(sweep_seed: int, point_key: str, batch_index: int, shots: int) ->
     return int.from_bytes(hashlib.sha256(text.encode()).digest()[:8], "little") >> 1
 
 
-def compile_point(params: dict[str, Any]) -> CompiledPoint:
-    """Build the noisy circuit and compile the decoder for one point."""
+def compile_point(params: dict[str, Any], model: bytes | None = None) -> CompiledPoint:
+    """Build the noisy circuit and compile the decoder for one point.
+
+    ``model``: the point's detector error model as shipped by the coordinator
+    (:func:`~codebench.engine.models.pack_model`); without it the model is
+    derived from the circuit here.
+    """
     point = Point.from_params(params)
-    circuit = noisy_circuit(point)
+    circuit = circuit_of(params)
     decoder_cls = get_decoder(point.decoder)
     decoder = decoder_cls(**dict(point.decoder_options))
-    dem = circuit.detector_error_model(decompose_errors=decoder_cls.wants_decomposed)
+    dem = unpack_model(model) if model is not None else model_of(params, decoder_cls.wants_decomposed)
     decoder.compile(dem)
     return CompiledPoint(circuit, decoder, circuit.num_detectors, circuit.num_observables, dem)
 
 
-def compiled(point_key: str, params: dict[str, Any]) -> CompiledPoint:
+def compiled(point_key: str, params: dict[str, Any], model: bytes | None = None) -> CompiledPoint:
     """The cached compiled point, compiling it on first use."""
     cache = _cache.points
     if point_key in cache:
         cache.move_to_end(point_key)
         return cache[point_key]
-    entry = compile_point(params)
+    entry = compile_point(params, model)
     cache[point_key] = entry
     while len(cache) > CACHE_SIZE:
         cache.popitem(last=False)
@@ -122,7 +127,7 @@ def run_batch(task: BatchTask) -> BatchResult:
     """Sample and decode one batch; pure function of the task."""
     if not _warmed:
         _warm_up_sampler()
-    point = compiled(task.point_key, task.params)
+    point = compiled(task.point_key, task.params, task.model)
     if task.faults is not None:
         return _run_fault_batch(task, point, task.faults)
     start = time.perf_counter()

@@ -61,6 +61,13 @@ class SharedPool(Executor):
     def in_flight(self) -> int:
         return self.inner.in_flight()
 
+    @classmethod
+    def create(cls, options: Mapping[str, Any]) -> SharedPool:
+        raise TypeError("a SharedPool wraps an executor the forecast made; it is not created by name")
+
+    def abandon(self) -> None:
+        self.inner.abandon()
+
     def close(self, wait: bool = True) -> None:
         if not wait:
             self.shutdown(wait=False)

@@ -1,4 +1,4 @@
-"""The decoder conformance suite, importable for your own decoders.
+"""Conformance checks for decoders, importable for your own.
 
 Every registered decoder passes these checks (``tests/test_conformance.py``
 runs them); run them on a decoder of your own before naming it in a sweep

@@ -1,0 +1,124 @@
+"""Executors on this machine: in the calling process, or a pool of local worker processes."""
+
+from __future__ import annotations
+
+import multiprocessing
+import os
+import signal
+from collections.abc import Mapping
+from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from typing import Any, ClassVar
+
+from codebench.engine.executor import Executor
+from codebench.engine.worker import run_batch
+from codebench.options import OptionSpec
+from codebench.records import BatchResult, BatchTask
+
+__all__ = ["MAX_LOCAL_WORKERS", "InProcessExecutor", "LocalExecutor"]
+
+#: Most local worker processes one coordinator starts (each holds its compiled points).
+MAX_LOCAL_WORKERS = 512
+
+
+class InProcessExecutor(Executor):
+    """Runs each batch in the calling process when its result is asked for."""
+
+    name = "in_process"
+    remote = False
+
+    def __init__(self) -> None:
+        self._queue: list[BatchTask] = []
+
+    @classmethod
+    def create(cls, options: Mapping[str, Any]) -> InProcessExecutor:
+        return cls()
+
+    @property
+    def capacity(self) -> int:
+        return 1
+
+    def submit(self, task: BatchTask) -> None:
+        self._queue.append(task)
+
+    def completed(self, timeout: float) -> list[BatchResult]:
+        return [run_batch(self._queue.pop(0))] if self._queue else []
+
+    def in_flight(self) -> int:
+        return len(self._queue)
+
+    def abandon(self) -> None:
+        self._queue.clear()
+
+
+def _ready() -> bool:
+    return True
+
+
+def _ignore_interrupts() -> None:
+    """Workers leave Ctrl-C to the coordinator, which stops them itself."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+
+class LocalExecutor(Executor):
+    """A pool of ``workers`` local processes (fork server, libraries preloaded)."""
+
+    name = "local"
+    option_specs: ClassVar[dict[str, OptionSpec]] = {
+        "workers": OptionSpec("int", 0, "worker processes (0: one per core)", low=0, high=MAX_LOCAL_WORKERS),
+    }
+
+    @classmethod
+    def create(cls, options: Mapping[str, Any]) -> LocalExecutor:
+        return cls(int(options.get("workers", 0)) or None)
+
+    def __init__(self, workers: int | None = None) -> None:
+        self.workers = workers or os.cpu_count() or 1
+        method = "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn"
+        context = multiprocessing.get_context(method)
+        if method == "forkserver":
+            context.set_forkserver_preload(["codebench.engine.worker"])
+        self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_ignore_interrupts)
+        self._futures: set[Future[BatchResult]] = set()
+        self._closed = False
+        # Start every worker now: an interrupt while the pool is still spawning
+        # processes would otherwise leave multiprocessing half set up.
+        for future in [self._pool.submit(_ready) for _ in range(self.workers)]:
+            future.result()
+
+    @property
+    def capacity(self) -> int:
+        return 2 * self.workers
+
+    def submit(self, task: BatchTask) -> None:
+        self._futures.add(self._pool.submit(run_batch, task))
+
+    def completed(self, timeout: float) -> list[BatchResult]:
+        if not self._futures:
+            return []
+        done, pending = wait(self._futures, timeout=timeout, return_when=FIRST_COMPLETED)
+        self._futures = set(pending)
+        return [f.result() for f in done]
+
+    def in_flight(self) -> int:
+        return len(self._futures)
+
+    def abandon(self) -> None:
+        # Batches not started are cancelled; running ones finish in their worker, unread.
+        for future in self._futures:
+            future.cancel()
+        self._futures = set()
+
+    def summary(self) -> str:
+        return f"{self.workers} local worker processes"
+
+    def close(self, wait: bool = True) -> None:
+        if self._closed:
+            return
+        self._closed = True
+        if not wait:
+            # Interrupted: do not sit out the running batches; their results would be dropped anyway.
+            for process in list(getattr(self._pool, "_processes", {}).values()):
+                process.terminate()
+        self._pool.shutdown(wait=wait, cancel_futures=True)
+
+
