@@ -8,8 +8,9 @@ covers the sweep itself (compiling in the workers, sampling, decoding, the
 store), not process or cluster start-up, which is printed on its own line.
 The counts of the two must be identical, and are checked.
 
-Prints per run the wall time and shots/s, then the ratio of Dask to local
-throughput (goal: at least 0.9).
+Prints per run the wall time, the CPU time (coordinator and every worker
+process) and shots/s, after a discarded warm-up run; then the ratio of Dask
+to local throughput (goal: at least 0.9) and the CPU-time ratio.
 
 Usage::
 
@@ -23,6 +24,8 @@ import tempfile
 import time
 from pathlib import Path
 from typing import Any, Callable
+
+from cpu_meter import CpuMeter
 
 from codebench.api import run_sweep
 from codebench.engine.dask_executor import start_dask_executor
@@ -42,16 +45,22 @@ def sweep(shots: int) -> dict[str, Any]:
     }
 
 
-def timed_run(make: Callable[[], Executor], config: dict[str, Any]) -> tuple[float, float, list[tuple[int, int]]]:
-    """(start-up seconds, sweep seconds, per-point (shots, failures)) of one fresh run."""
+def timed_run(make: Callable[[], Executor],
+              config: dict[str, Any]) -> tuple[float, float, float, list[tuple[int, int]]]:
+    """(start-up seconds, sweep seconds, sweep CPU seconds, per-point (shots, failures)) of one fresh run.
+
+    CPU seconds count this process and all its descendants (pool workers; Dask nannies and workers)
+    while the sweep runs, start-up excluded.
+    """
     start = time.perf_counter()
     executor = make()
     ready = time.perf_counter()
     with executor, tempfile.TemporaryDirectory() as out:
-        frame = run_sweep(config, out=Path(out), executor=executor, progress=False)
-        done = time.perf_counter()
+        with CpuMeter() as meter:
+            frame = run_sweep(config, out=Path(out), executor=executor, progress=False)
+            done = time.perf_counter()
     counts = [(int(s), int(f)) for s, f in zip(frame["shots"], frame["failures"])]
-    return ready - start, done - ready, counts
+    return ready - start, done - ready, meter.cpu, counts
 
 
 def main() -> None:
@@ -66,27 +75,32 @@ def main() -> None:
         "local (2 processes)": lambda: LocalExecutor(WORKERS),
         "dask (LocalCluster, 2 workers)": lambda: start_dask_executor(ClusterSpec(local_workers=WORKERS)),
     }
+    timed_run(makers[next(iter(makers))], sweep(10_000))  # warm-up, discarded (imports, caches)
     seconds: dict[str, list[float]] = {name: [] for name in makers}
+    cpu: dict[str, list[float]] = {name: [] for name in makers}
     startup: dict[str, list[float]] = {name: [] for name in makers}
     reference: list[tuple[int, int]] | None = None
     total_shots = 2 * args.shots
     for repeat in range(args.repeats):
         for name, make in makers.items():
-            up, run, counts = timed_run(make, config)
+            up, run, used, counts = timed_run(make, config)
             if reference is None:
                 reference = counts
             elif counts != reference:
                 raise SystemExit(f"counts differ: {name} gave {counts}, expected {reference}")
             seconds[name].append(run)
+            cpu[name].append(used)
             startup[name].append(up)
-            print(f"run {repeat + 1} {name:32s} {run:6.2f} s  {total_shots / run:10,.0f} shots/s  "
+            print(f"run {repeat + 1} {name:32s} {run:6.2f} s  {used:6.2f} CPU s  {total_shots / run:10,.0f} shots/s  "
                   f"(start-up {up:.2f} s)", flush=True)
     best = {name: min(values) for name, values in seconds.items()}
     local_name, dask_name = makers
     print(f"\ncounts identical in all {2 * args.repeats} runs: {reference}")
     print(f"best of {args.repeats}: local {total_shots / best[local_name]:,.0f} shots/s, "
           f"dask {total_shots / best[dask_name]:,.0f} shots/s")
+    least = {name: min(values) for name, values in cpu.items()}
     print(f"throughput ratio dask / local: {best[local_name] / best[dask_name]:.3f} (goal >= 0.9)")
+    print(f"CPU-time ratio local / dask: {least[local_name] / least[dask_name]:.3f} (1.0: Dask costs no extra CPU)")
     print(f"start-up: local {min(startup[local_name]):.2f} s, dask {min(startup[dask_name]):.2f} s")
 
 

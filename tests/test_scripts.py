@@ -26,6 +26,7 @@ def test_bench_cluster_runs_both_executors_with_identical_counts() -> None:
     out = run_script("bench_cluster.py", "--shots", "10000", "--repeats", "1")
     assert "counts identical in all 2 runs" in out
     assert "throughput ratio dask / local:" in out
+    assert "CPU-time ratio local / dask:" in out
 
 
 def test_bench_scaling_prints_the_table_and_the_fitted_exponent() -> None:
