@@ -65,3 +65,9 @@ def test_bench_overhead_prints_every_case() -> None:
     out = run_script("bench_overhead.py", "--shots", "3000", "--small-shots", "300", "--cases", "small,d3")
     assert "bare/eng1 wall" in out
     assert [line.split()[0] for line in out.splitlines()[1:]] == ["small", "d3"]
+
+
+def test_bench_throughput_prints_wall_and_cpu_ratios() -> None:
+    out = run_script("bench_throughput.py", "--shots", "20000", "--repeats", "1")
+    for line in ("cpu_ratio ", "cpu_ratio_2_vs_1 ", "ratio_2_vs_1 ", "ratio "):
+        assert any(row.startswith(line) for row in out.splitlines()), line
