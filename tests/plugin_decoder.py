@@ -132,3 +132,77 @@ class DiesOnce(Matching):
             else:
                 os.kill(os.getpid(), signal.SIGKILL)
         return super().decode_batch(detection_events, bit_packed=bit_packed)
+
+
+class _Broken(SingleFaultLookup):
+    """Base of decoders that break the output contract in one way each (``shape_of`` what they return)."""
+
+    def decode_batch(self, detection_events: np.ndarray, *, bit_packed: bool = True) -> Any:
+        good = super().decode_batch(detection_events, bit_packed=bit_packed)
+        return self.spoil(good, len(detection_events))
+
+    def spoil(self, good: np.ndarray, shots: int) -> Any:
+        return good
+
+
+class WideOutput(_Broken):
+    name = "wide_output"
+
+    def spoil(self, good: np.ndarray, shots: int) -> Any:
+        return np.zeros((shots, 5), dtype=np.uint8)
+
+
+class FlatOutput(_Broken):
+    name = "flat_output"
+
+    def spoil(self, good: np.ndarray, shots: int) -> Any:
+        return good[:, 0]
+
+
+class TinyOutput(_Broken):
+    name = "tiny_output"
+
+    def spoil(self, good: np.ndarray, shots: int) -> Any:
+        return np.zeros((1, 1), dtype=np.uint8)
+
+
+class FloatOutput(_Broken):
+    name = "float_output"
+
+    def spoil(self, good: np.ndarray, shots: int) -> Any:
+        return good.astype(float)
+
+
+class UnpackedOutput(_Broken):
+    name = "unpacked_output"
+
+    def spoil(self, good: np.ndarray, shots: int) -> Any:
+        return np.unpackbits(good, axis=1, bitorder="little").astype(bool)
+
+
+class PaddingBitsSet(_Broken):
+    name = "padding_bits_set"
+
+    def spoil(self, good: np.ndarray, shots: int) -> Any:
+        return good | np.uint8(0x80)
+
+
+class NoOutput(_Broken):
+    name = "no_output"
+
+    def spoil(self, good: np.ndarray, shots: int) -> Any:
+        return None
+
+
+class RaisesInDecode(_Broken):
+    name = "raises_in_decode"
+
+    def spoil(self, good: np.ndarray, shots: int) -> Any:
+        raise ValueError("lookup table exhausted")
+
+
+class RaisesInCompile(SingleFaultLookup):
+    name = "raises_in_compile"
+
+    def compile(self, dem: stim.DetectorErrorModel) -> None:
+        raise RuntimeError("cannot build the graph")

@@ -24,8 +24,10 @@ import stim
 
 from codebench.decoders import get_decoder
 from codebench.decoders.base import Decoder
+from codebench.decoders.plugins import is_spec
 from codebench.engine.fault_sampling import FaultTable, fault_shots, sample_fault_sets
 from codebench.engine.models import circuit_of, model_of, unpack_model
+from codebench.errors import DecoderError
 from codebench.records import BatchResult, BatchTask, Point
 
 #: Compiled points a worker keeps (least recently used evicted first).
@@ -39,6 +41,8 @@ class CompiledPoint:
     num_detectors: int
     num_observables: int
     dem: stim.DetectorErrorModel
+    #: As the point names it (a registered name or a plug-in spec), for messages.
+    decoder_name: str = ""
     _faults: FaultTable | None = None
 
     @property
@@ -81,8 +85,38 @@ def compile_point(params: dict[str, Any], model: bytes | None = None) -> Compile
     decoder_cls = get_decoder(point.decoder)
     decoder = decoder_cls(**dict(point.decoder_options))
     dem = unpack_model(model) if model is not None else model_of(params, decoder_cls.wants_decomposed)
-    decoder.compile(dem)
-    return CompiledPoint(circuit, decoder, circuit.num_detectors, circuit.num_observables, dem)
+    try:
+        decoder.compile(dem)
+    except DecoderError:
+        raise
+    except Exception as exc:
+        raise DecoderError(f"decoder {point.decoder!r} failed in compile: {type(exc).__name__}: {exc}") from exc
+    entry = CompiledPoint(circuit, decoder, circuit.num_detectors, circuit.num_observables, dem, point.decoder)
+    if is_spec(point.decoder):
+        check_deterministic(entry)
+    return entry
+
+
+#: Shots of the batch a plug-in decoder must decode twice alike before its point runs.
+DETERMINISM_SHOTS = 256
+
+
+def check_deterministic(point: CompiledPoint) -> None:
+    """Refuse a decoder that predicts differently when given the same batch twice.
+
+    Counts for a seed must not depend on anything but the seed; a decoder with
+    its own unseeded randomness (or state carried between calls) breaks that
+    silently. Cheap: one small batch at a fixed seed, decoded twice.
+    """
+    sampler = point.circuit.compile_detector_sampler(seed=DETERMINISM_SHOTS)
+    detectors, _ = sampler.sample(DETERMINISM_SHOTS, separate_observables=True, bit_packed=True)
+    first = decode(point, detectors)
+    second = decode(point, detectors)
+    if not np.array_equal(first, second):
+        differ = int(np.count_nonzero(np.any(first != second, axis=1)))
+        raise DecoderError(f"decoder {point.decoder_name!r} is not deterministic: decoding the same "
+                           f"{DETERMINISM_SHOTS} shots twice gave different predictions for {differ} of them; "
+                           "counts for a seed would not be reproducible (seed its randomness from its options)")
 
 
 def compiled(point_key: str, params: dict[str, Any], model: bytes | None = None) -> CompiledPoint:
@@ -99,8 +133,42 @@ def compiled(point_key: str, params: dict[str, Any], model: bytes | None = None)
 
 
 def count_failures(predicted: np.ndarray, actual: np.ndarray) -> int:
-    """Shots where any bit-packed observable prediction differs from the truth."""
+    """Shots where any bit-packed observable prediction differs from the truth (both checked alike)."""
     return int(np.count_nonzero(np.any(predicted != actual, axis=1)))
+
+
+def decode(point: CompiledPoint, detectors: np.ndarray) -> np.ndarray:
+    """The decoder's bit-packed predictions for ``detectors``, checked against its contract.
+
+    Whatever a decoder does wrong ends here as a :class:`DecoderError` naming it, so no
+    batch of a misbehaving decoder is ever counted or stored.
+    """
+    name = point.decoder_name
+    detectors.flags.writeable = False  # a decoder must not change its input
+    try:
+        predicted = point.decoder.decode_batch(detectors, bit_packed=True)
+    except DecoderError:
+        raise
+    except Exception as exc:
+        raise DecoderError(f"decoder {name!r} failed in decode_batch: {type(exc).__name__}: {exc}") from exc
+    check_predictions(name, predicted, len(detectors), point.num_observables)
+    return predicted
+
+
+def check_predictions(name: str, predicted: object, shots: int, observables: int) -> None:
+    """Refuse predictions that are not ``uint8 (shots, ceil(observables / 8))`` with zero padding bits."""
+    width = (observables + 7) // 8
+    expected = f"a numpy uint8 array of shape ({shots}, {width}) (bit-packed predictions, one row per shot)"
+    if not isinstance(predicted, np.ndarray):
+        raise DecoderError(f"decoder {name!r} returned {type(predicted).__name__} for a batch of {shots} shots; "
+                           f"expected {expected}")
+    if predicted.dtype != np.uint8 or predicted.shape != (shots, width):
+        raise DecoderError(f"decoder {name!r} returned a {predicted.dtype} array of shape {predicted.shape} for "
+                           f"a batch of {shots} shots; expected {expected}")
+    spare = observables % 8
+    if spare and shots and np.any(predicted[:, -1] >> spare):
+        raise DecoderError(f"decoder {name!r} set bits beyond its {observables} observables in its packed "
+                           "predictions (little-endian bit order, padding bits zero)")
 
 
 _warm_lock = threading.Lock()
@@ -140,7 +208,7 @@ def run_batch(task: BatchTask) -> BatchResult:
     for chunk in _chunks(task.shots, chunk_shots(point.num_detectors, point.circuit.num_measurements)):
         detectors, observables = sampler.sample(chunk, separate_observables=True, bit_packed=True)
         decode_start = time.perf_counter()
-        predicted = point.decoder.decode_batch(detectors, bit_packed=True)
+        predicted = decode(point, detectors)
         decode_seconds += time.perf_counter() - decode_start
         failures += count_failures(predicted, observables)
     return BatchResult(
@@ -163,7 +231,7 @@ def _run_fault_batch(task: BatchTask, point: CompiledPoint, faults: int) -> Batc
     for chunk in _chunks(task.shots, chunk_shots(point.num_detectors, point.circuit.num_measurements)):
         detectors, observables = fault_shots(table, sample_fault_sets(table.odds, faults, chunk, rng))
         decode_start = time.perf_counter()
-        predicted = point.decoder.decode_batch(detectors, bit_packed=True)
+        predicted = decode(point, detectors)
         decode_seconds += time.perf_counter() - decode_start
         failures += count_failures(predicted, observables)
     return BatchResult(point_key=task.point_key, batch_index=task.batch_index, shots=task.shots,

@@ -1,0 +1,93 @@
+"""Faults a careless plug-in, input or machine can cause: refused in one line, nothing wrong stored.
+
+What must hold (the engine's contract; common practice for batch pipelines
+that promise reproducible counts):
+
+* A decoder's predictions are checked on every batch (shape, dtype, packing);
+  a decoder that breaks the contract, raises, or is not deterministic stops
+  the run with one ``DecoderError`` line naming it (exit status 2), and no
+  batch of it is ever stored, so a fixed decoder resumes from clean counts.
+"""
+
+from __future__ import annotations
+
+import os
+import sqlite3
+import subprocess
+from contextlib import closing
+from pathlib import Path
+
+import plugin_decoder
+import pytest
+from test_engine import CLI, write
+
+from codebench.api import run_sweep
+from codebench.errors import DecoderError
+
+TESTS = Path(__file__).parent
+
+
+def plugin_sweep(tmp_path: Path, decoder: str) -> Path:
+    return write(tmp_path / "plug.toml", f"""\
+name = "plug"
+seed = 3
+
+[stopping]
+shot_budget = 5000
+
+[[study]]
+code = "rotated_surface"
+distances = [3]
+rounds = 1
+noise = "code_capacity"
+p = [0.05]
+decoders = ["{plugin_decoder.__name__}:{decoder}"]
+""")
+
+
+def stored_batches(folder: Path) -> int:
+    store = folder / "results.sqlite"
+    if not store.exists():
+        return 0
+    with closing(sqlite3.connect(f"file:{store}?mode=ro", uri=True)) as db:
+        return int(db.execute("SELECT COUNT(*) FROM batches").fetchone()[0])
+
+
+BROKEN = [
+    ("WideOutput", "shape (256, 5)"),
+    ("FlatOutput", "shape (256,)"),
+    ("TinyOutput", "shape (1, 1)"),
+    ("FloatOutput", "float64"),
+    ("UnpackedOutput", "bool"),
+    ("PaddingBitsSet", "bits beyond"),
+    ("NoOutput", "returned NoneType"),
+    ("RaisesInDecode", "failed in decode_batch: ValueError: lookup table exhausted"),
+    ("RaisesInCompile", "failed in compile: RuntimeError: cannot build the graph"),
+    ("Unseeded", "not deterministic"),
+    ("MutatesInput", "failed in decode_batch"),
+]
+
+
+@pytest.mark.parametrize("workers", [1, 2])
+@pytest.mark.parametrize(("decoder", "fragment"), BROKEN, ids=[b[0] for b in BROKEN])
+def test_broken_decoder_is_refused_and_nothing_is_stored(tmp_path: Path, decoder: str, fragment: str,
+                                                         workers: int) -> None:
+    with pytest.raises(DecoderError) as info:
+        run_sweep(plugin_sweep(tmp_path, decoder), out=tmp_path / "out", workers=workers, progress=False)
+    message = str(info.value)
+    assert "\n" not in message and f"plugin_decoder:{decoder}" in message and fragment in message
+    assert stored_batches(tmp_path / "out") == 0
+
+
+def cli_with_plugins(*args: object) -> subprocess.CompletedProcess[str]:
+    """The command line with the tests' plug-in module importable (as an installed plug-in would be)."""
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join([str(TESTS), os.environ.get("PYTHONPATH", "")])}
+    return subprocess.run([*CLI, *map(str, args)], capture_output=True, text=True, timeout=180, env=env)
+
+
+def test_broken_decoder_exits_2_with_one_line(tmp_path: Path) -> None:
+    done = cli_with_plugins("sweep", plugin_sweep(tmp_path, "WideOutput"), "--out", tmp_path / "out",
+                            "--workers", 2, "--quiet")
+    assert done.returncode == 2, done.stderr
+    lines = done.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("codebench: decoder") and "Traceback" not in done.stderr
