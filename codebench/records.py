@@ -12,13 +12,14 @@ from __future__ import annotations
 
 import hashlib
 import json
+from collections.abc import Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, overload
 
 from codebench.layout import Basis
 from codebench.stats import wilson_interval
 
-__all__ = ["BatchResult", "BatchTask", "ClusterSpec", "Point", "Stopping", "batch_cap", "batch_sizes"]
+__all__ = ["BatchResult", "BatchSchedule", "BatchTask", "ClusterSpec", "Point", "Stopping", "batch_cap", "batch_sizes"]
 
 
 # ---------------------------------------------------------------------------
@@ -131,26 +132,66 @@ def batch_cap(num_detectors: int, batch_bytes: int = DEFAULT_BATCH_BYTES) -> int
     return max(1, min(MAX_BATCH_SHOTS, batch_bytes // per_shot))
 
 
-def batch_sizes(shot_budget: int, cap: int) -> list[int]:
+class BatchSchedule(Sequence[int]):
     """Sizes of batches 0, 1, 2, ...: growing from FIRST_BATCH up to ``cap``, truncated at the budget.
 
     A pure function of its arguments, so every run and worker count sees the
-    same batches.
+    same batches. Lazy: the growing head (a few dozen sizes at most) is kept,
+    the rest are all ``cap`` but the last, so a budget of 2**63 shots costs no
+    more than one of a thousand.
 
-    >>> batch_sizes(5000, 2048)
+    >>> list(BatchSchedule(5000, 2048))
     [1024, 2048, 1928]
+    >>> schedule = BatchSchedule(2**62, 80000)
+    >>> len(schedule), schedule[40], schedule[len(schedule) - 1]
+    (57646075230342, 80000, 30976)
+    """
+
+    def __init__(self, shot_budget: int, cap: int) -> None:
+        if shot_budget < 0 or cap < 1:
+            raise ValueError(f"a batch schedule needs shot_budget >= 0 and cap >= 1; got {shot_budget}, {cap}")
+        self.shot_budget, self.cap = int(shot_budget), int(cap)
+        head: list[int] = []
+        total = 0
+        size = min(FIRST_BATCH, cap)
+        while total < shot_budget and size < cap:
+            take = min(size, shot_budget - total)
+            head.append(take)
+            total += take
+            size = min(size * 2 if size < FAST_GROWTH_LIMIT else size + size // 4, cap)
+        self._head = head
+        rest = max(0, shot_budget - total)
+        self._full, self._last = divmod(rest, cap)
+        self._count = len(head) + self._full + (1 if self._last else 0)
+
+    def __len__(self) -> int:
+        return self._count
+
+    @overload
+    def __getitem__(self, index: int) -> int: ...
+
+    @overload
+    def __getitem__(self, index: slice) -> list[int]: ...
+
+    def __getitem__(self, index: int | slice) -> int | list[int]:
+        if isinstance(index, slice):
+            return [self[i] for i in range(*index.indices(self._count))]
+        if index < 0:
+            index += self._count
+        if not 0 <= index < self._count:
+            raise IndexError(f"batch {index} is beyond the schedule's {self._count} batches")
+        if index < len(self._head):
+            return self._head[index]
+        return self.cap if index - len(self._head) < self._full else self._last
+
+
+def batch_sizes(shot_budget: int, cap: int) -> list[int]:
+    """All sizes of :class:`BatchSchedule` as a list (for small budgets: tests, doctests).
+
     >>> batch_sizes(40000, 1 << 20)
     [1024, 2048, 4096, 8192, 10240, 12800, 1600]
     """
-    sizes: list[int] = []
-    total = 0
-    size = min(FIRST_BATCH, cap)
-    while total < shot_budget:
-        take = min(size, shot_budget - total)
-        sizes.append(take)
-        total += take
-        size = min(size * 2 if size < FAST_GROWTH_LIMIT else size + size // 4, cap)
-    return sizes
+    return list(BatchSchedule(shot_budget, cap))
 
 
 # ---------------------------------------------------------------------------

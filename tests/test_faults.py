@@ -11,6 +11,7 @@ that promise reproducible counts):
 
 from __future__ import annotations
 
+import itertools
 import os
 import sqlite3
 import subprocess
@@ -23,6 +24,7 @@ from test_engine import CLI, write
 
 from codebench.api import run_sweep
 from codebench.errors import DecoderError
+from codebench.records import BatchSchedule
 
 TESTS = Path(__file__).parent
 
@@ -91,3 +93,36 @@ def test_broken_decoder_exits_2_with_one_line(tmp_path: Path) -> None:
     assert done.returncode == 2, done.stderr
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and lines[0].startswith("codebench: decoder") and "Traceback" not in done.stderr
+
+
+# ---------------------------------------------------------------------------
+# sizes: the batch schedule is lazy
+
+
+def eager_sizes(shot_budget: int, cap: int) -> list[int]:
+    """The schedule as first written (an eager list): the reference the lazy one must equal."""
+    sizes: list[int] = []
+    total, size = 0, min(1024, cap)
+    while total < shot_budget:
+        take = min(size, shot_budget - total)
+        sizes.append(take)
+        total += take
+        size = min(size * 2 if size < 8192 else size + size // 4, cap)
+    return sizes
+
+
+@pytest.mark.parametrize("cap", [1, 7, 1000, 1024, 2048, 8192, 8193, 80000, 1 << 18])
+@pytest.mark.parametrize("budget", [0, 1, 1023, 1024, 5000, 40000, 123457, 2_000_000])
+def test_lazy_schedule_equals_the_eager_one(budget: int, cap: int) -> None:
+    schedule = BatchSchedule(budget, cap)
+    assert list(schedule) == eager_sizes(budget, cap)
+    assert sum(schedule) == budget
+
+
+def test_a_huge_budget_costs_nothing_to_schedule() -> None:
+    # An eager list here held 10**14 entries (the campaign's hang); the lazy one adds up exactly.
+    schedule = BatchSchedule(2**63 - 1, 80000)
+    head = list(itertools.takewhile(lambda size: size < 80000, schedule))
+    full = len(schedule) - len(head) - 1
+    assert schedule[100] == 80000 and 0 < schedule[-1] <= 80000
+    assert sum(head) + full * 80000 + schedule[-1] == 2**63 - 1

@@ -12,7 +12,7 @@ import math
 import signal
 from dataclasses import dataclass, field
 from types import FrameType
-from typing import Callable, Iterator
+from typing import Callable, Iterator, Sequence
 
 from codebench.build import qubit_count
 from codebench.decoders import get_decoder
@@ -23,11 +23,11 @@ from codebench.engine.worker import batch_seed
 from codebench.errors import Interrupted
 from codebench.records import (
     BatchResult,
+    BatchSchedule,
     BatchTask,
     Point,
     Stopping,
     batch_cap,
-    batch_sizes,
 )
 from codebench.results.store import Store, StoredPoint
 from codebench.results.tally import Tally, tally, usable_batches
@@ -40,7 +40,7 @@ class PointRun:
 
     stored: StoredPoint
     seed: int
-    sizes: list[int]
+    sizes: Sequence[int]
     batches: dict[int, BatchResult]
     in_flight: set[int] = field(default_factory=set)
     tally: Tally = field(default_factory=Tally)
@@ -154,7 +154,7 @@ def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress 
     stored = store.all_batches()
     runs: list[PointRun] = []
     for member, _ in plan.members:
-        sizes = batch_sizes(plan.stopping.shot_budget, member.batch_cap)
+        sizes = BatchSchedule(plan.stopping.shot_budget, member.batch_cap)
         run = PointRun(member, plan.seed, sizes, usable_batches(sizes, stored.get(member.key, [])))
         run.refresh(plan.stopping)
         runs.append(run)

@@ -11,7 +11,7 @@ from pathlib import Path
 import pandas as pd
 
 from codebench.noise import NOISE_MODELS
-from codebench.records import batch_sizes
+from codebench.records import BatchSchedule
 from codebench.results.store import Store
 from codebench.results.tally import tally, usable_batches
 from codebench.stats import binomial_interval, per_round
@@ -76,7 +76,7 @@ def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
     rows = []
     for member, study in store.members():
         point = member.point
-        sizes = batch_sizes(stopping.shot_budget, member.batch_cap)
+        sizes = BatchSchedule(stopping.shot_budget, member.batch_cap)
         t = tally(sizes, usable_batches(sizes, stored.get(member.key, [])), stopping)
         rate = t.failures / t.shots if t.shots else float("nan")
         low, high = binomial_interval(t.failures, t.shots, interval) if t.shots else (float("nan"), float("nan"))

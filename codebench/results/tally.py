@@ -9,8 +9,8 @@ stopping rule, never on the number of workers or the completion order.
 
 from __future__ import annotations
 
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
-from typing import Iterable
 
 from codebench.records import BatchResult, Stopping
 
@@ -25,7 +25,7 @@ class Tally:
     finished: bool = False
 
 
-def usable_batches(sizes: list[int], results: Iterable[BatchResult]) -> dict[int, BatchResult]:
+def usable_batches(sizes: Sequence[int], results: Iterable[BatchResult]) -> dict[int, BatchResult]:
     """Stored batches that belong to the current schedule, by index."""
     return {
         r.batch_index: r
@@ -34,7 +34,7 @@ def usable_batches(sizes: list[int], results: Iterable[BatchResult]) -> dict[int
     }
 
 
-def tally(sizes: list[int], batches: dict[int, BatchResult], stopping: Stopping) -> Tally:
+def tally(sizes: Sequence[int], batches: dict[int, BatchResult], stopping: Stopping) -> Tally:
     """Sum the contiguous prefix of batches until the stopping rule holds."""
     shots = failures = count = 0
     seconds = decode = 0.0
