@@ -12,13 +12,15 @@ from typing import Any, Callable, Mapping
 
 import pandas as pd
 
+from codebench.build import size_estimate
+from codebench.codes import get_code_family
 from codebench.config import Sweep, load_sweep, parse_sweep
 from codebench.engine.cluster import require_packages, scheduler_address
 from codebench.engine.executors import Executor, make_executor
 from codebench.engine.progress import Progress
 from codebench.engine.runner import RunPlan, StopSignals, describe, execute
 from codebench.errors import CodebenchError, ConfigError, StoreError, not_allowed
-from codebench.records import ClusterSpec
+from codebench.records import ClusterSpec, Point
 from codebench.results.export import results_frame, write_csv
 from codebench.results.lock import RunLock
 from codebench.results.store import Store, StoredPoint
@@ -114,7 +116,11 @@ def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progre
          where: tuple[int | None, ClusterSpec | None], stop_when: Callable[[], bool] | None) -> pd.DataFrame:
     folder = Path(out) if out is not None else sweep.output_dir_default
     # Everything that can fail on bad input happens before the folder is touched.
-    members = [(describe(point, sweep.seed, sweep.batch_bytes), point.study) for point in sweep.points]
+    members = []
+    for point in sweep.points:
+        if progress:
+            _announce_if_large(point)
+        members.append((describe(point, sweep.seed, sweep.batch_bytes), point.study))
     if folder.exists() and not folder.is_dir():
         raise ConfigError(not_allowed("--out", str(folder), "a folder (or a path that does not exist yet)"))
     store_path = folder / STORE_NAME
@@ -136,6 +142,17 @@ def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progre
             lock.path.unlink(missing_ok=True)
             with contextlib.suppress(OSError):
                 folder.rmdir()
+
+
+#: Points with more detectors than this are announced before their circuit is built (it takes a while).
+LARGE_POINT_DETECTORS = 100_000
+
+
+def _announce_if_large(point: Point) -> None:
+    qubits, detectors = size_estimate(get_code_family(point.code), point.distance, point.rounds, point.basis)
+    if detectors > LARGE_POINT_DETECTORS:
+        print(f"building {point.label()}: about {detectors:,} detectors on {qubits:,} qubits "
+              f"(about {detectors / 1e6:.1f} GB while its model is analysed and compiled)", file=sys.stderr)
 
 
 def _record(sweep: Sweep, folder: Path, members: list[tuple[StoredPoint, str]], run_executor: Executor,

@@ -18,7 +18,7 @@ from codebench.noise import get_noise_model
 from codebench.noise.base import NoiseModel
 from codebench.records import Point
 
-__all__ = ["family_ideal_circuit", "ideal_circuit", "noise_model", "noisy_circuit", "qubit_count"]
+__all__ = ["family_ideal_circuit", "ideal_circuit", "noise_model", "noisy_circuit", "qubit_count", "size_estimate"]
 
 
 def noise_model(point: Point) -> NoiseModel:
@@ -47,3 +47,13 @@ def family_ideal_circuit(family: CodeFamily, model: NoiseModel, distance: int, r
 def qubit_count(point: Point) -> int:
     """Physical qubits the point's code patch uses (data, measure and flag qubits)."""
     return get_code_family(point.code).qubit_count(point.distance)
+
+
+def size_estimate(family: CodeFamily, distance: int, rounds: int, basis: Basis) -> tuple[int, int]:
+    """(qubits, detectors) of a memory experiment, from the layout alone (no circuit is built).
+
+    One detector per check per round plus the final readout's: an upper bound for families whose
+    first round compares fewer checks.
+    """
+    layout = family.layout(distance, basis)
+    return len(layout.qubits), len(layout.checks) * (rounds + 1)

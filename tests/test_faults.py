@@ -23,7 +23,8 @@ import pytest
 from test_engine import CLI, write
 
 from codebench.api import run_sweep
-from codebench.errors import DecoderError
+from codebench.config import parse_sweep
+from codebench.errors import ConfigError, DecoderError
 from codebench.records import BatchSchedule
 
 TESTS = Path(__file__).parent
@@ -126,3 +127,35 @@ def test_a_huge_budget_costs_nothing_to_schedule() -> None:
     full = len(schedule) - len(head) - 1
     assert schedule[100] == 80000 and 0 < schedule[-1] <= 80000
     assert sum(head) + full * 80000 + schedule[-1] == 2**63 - 1
+
+
+# ---------------------------------------------------------------------------
+# sizes: generous upper limits, refused before anything is built
+
+SURFACE = {"code": "rotated_surface", "distances": [3], "rounds": "d", "noise": "si1000", "p": [0.001],
+           "decoders": ["mwpm"]}
+TOO_BIG = [
+    ("distance", {"distances": [10001]}, "study[0].distances[0] must be a distance of at most 201; got 10001."),
+    ("rounds", {"rounds": 1_000_000_000}, "study[0].rounds must be a positive integer (at most 10,000)"),
+    ("rounds multiple", {"distances": [101], "rounds": "200d"}, "at most 10,000 rounds"),
+    ("geomspace count", {"p": {"geomspace": [0.001, 0.01, 100_000_000]}}, "study[0].p.geomspace[2] must be an "
+                                                                             "integer in [1, 10,000]"),
+    ("detectors", {"distances": [201], "rounds": "d"}, "about 8,160,800 detectors on 80,801 qubits"),
+    ("grid", {"code": "repetition", "distances": list(range(3, 200, 2)), "p": {"geomspace": [0.001, 0.01, 300]}},
+     "expands to 29,700 points"),
+]
+
+
+@pytest.mark.parametrize(("change", "fragment"), [c[1:] for c in TOO_BIG], ids=[c[0] for c in TOO_BIG])
+def test_oversized_sweeps_are_refused_in_one_line(change: dict[str, object], fragment: str) -> None:
+    with pytest.raises(ConfigError) as info:
+        parse_sweep({"name": "big", "seed": 1, "study": [{**SURFACE, **change}]})
+    assert fragment in str(info.value) and "\n" not in str(info.value)
+
+
+def test_oversized_sweep_file_exits_2_and_writes_nothing(tmp_path: Path) -> None:
+    sweep = write(tmp_path / "big.toml", 'name = "big"\nseed = 1\n[[study]]\ncode = "rotated_surface"\n'
+                  'distances = [3]\nrounds = 1000000000\nnoise = "si1000"\np = [0.001]\ndecoders = ["mwpm"]\n')
+    done = cli_with_plugins("sweep", sweep, "--out", tmp_path / "out")
+    assert done.returncode == 2 and "at most 10,000" in done.stderr and "Traceback" not in done.stderr
+    assert not (tmp_path / "out").exists()

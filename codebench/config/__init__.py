@@ -44,7 +44,7 @@ from codebench.config.checks import (
     positive_int,
     require,
 )
-from codebench.config.study import parse_rounds, parse_study
+from codebench.config.study import MAX_POINTS, parse_rounds, parse_study
 from codebench.engine.cluster import parse_cluster
 from codebench.errors import ConfigError, not_allowed
 from codebench.records import DEFAULT_BATCH_BYTES, ClusterSpec, Point, Stopping
@@ -215,6 +215,9 @@ def _parse(data: object, source: str, text: str) -> Sweep:
             if point not in seen:
                 seen.add(point)
                 points.append(point)
+        if len(points) > MAX_POINTS:
+            raise Problem(f"the studies up to study[{index}] expand to {len(points):,} points; at most "
+                          f"{MAX_POINTS:,} points per sweep.")
     return Sweep(
         name=name,
         seed=int(seed),

@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 
+from codebench.build import size_estimate
 from codebench.codes import CODE_FAMILIES
 from codebench.codes.base import CodeFamily
 from codebench.config.checks import (
@@ -42,6 +43,18 @@ __all__ = ["parse_rounds", "parse_study"]
 _ROUNDS_PATTERN = re.compile(r"([1-9][0-9]*)?d")
 #: Significant digits kept for geomspace-expanded rates, so point keys are stable.
 P_DIGITS = 12
+#: Largest code distance a study may ask for (a patch of tens of thousands of qubits; the detector
+#: bound below is what usually binds).
+MAX_DISTANCE = 201
+#: Most syndrome rounds of one point.
+MAX_ROUNDS = 10_000
+#: Most rates one study's geomspace may expand to (the sweep's grid has its own bound).
+MAX_RATES = 10_000
+#: Most points of a sweep (each is described, built and stored; a larger grid is a mistyped count).
+MAX_POINTS = 20_000
+#: Most detectors one point's circuit may have: its detector error model and decoder take about
+#: 1 kB per detector (measured: 3.7 MB of model text at 3,360 detectors), so this is a few GB.
+MAX_DETECTORS = 2_000_000
 #: Study keys of every study; the noise models' own keys (rates, options) are added from the registry.
 _STUDY_KEYS = ("code", "distances", "rounds", "basis", "noise", "decoders", "decoder_options", "label")
 _ROUNDS_ALLOWED = (
@@ -88,12 +101,21 @@ def parse_rounds(spec: object, distance: int, path: str) -> list[int]:
         if match is None:
             raise Problem(not_allowed(path, spec, _ROUNDS_ALLOWED))
         factor = int(match.group(1)) if match.group(1) else 1
+        if factor * distance > MAX_ROUNDS:
+            raise Problem(not_allowed(path, spec, f"{_ROUNDS_ALLOWED}, at most {MAX_ROUNDS:,} rounds"))
         return [factor * distance]
     if is_int(spec):
-        return [positive_int(spec, path, "a positive integer")]
+        return [_rounds_value(spec, path)]
     if isinstance(spec, list) and spec:
-        return [positive_int(r, f"{path}[{i}]", "a positive integer") for i, r in enumerate(spec)]
+        return [_rounds_value(r, f"{path}[{i}]") for i, r in enumerate(spec)]
     raise Problem(not_allowed(path, spec, _ROUNDS_ALLOWED))
+
+
+def _rounds_value(value: object, path: str) -> int:
+    rounds = positive_int(value, path, f"a positive integer (at most {MAX_ROUNDS:,})")
+    if rounds > MAX_ROUNDS:
+        raise Problem(not_allowed(path, value, f"a positive integer (at most {MAX_ROUNDS:,})"))
+    return rounds
 
 
 # ---------------------------------------------------------------------------
@@ -131,6 +153,12 @@ def parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[Po
     label = study.get("label", str(index))
     if not isinstance(label, str) or not label:
         raise Problem(not_allowed(f"{at}.label", label, "a non-empty string"))
+    grid = sum(len(r) for r in rounds.values()) * len(bases) * len(rates) * len(decoders)
+    if grid > MAX_POINTS:
+        raise Problem(f"{at} expands to {grid:,} points ({len(distances)} distances x rounds x {len(bases)} bases x "
+                      f"{len(rates)} rates x {len(decoders)} decoders); at most {MAX_POINTS:,} points per sweep.")
+    for d, r in sorted({(d, r) for d in distances for r in rounds[d]}):
+        _check_size(family, d, r, bases, at)
 
     points = [
         Point(
@@ -165,8 +193,25 @@ def _parse_distances(value: object, family: CodeFamily, at: str) -> list[int]:
         problem = family.distance_problem(int(d))
         if problem is not None:
             raise Problem(not_allowed(f"{path}[{i}]", d, f"{problem} for {family.name}"))
+        if d > MAX_DISTANCE:
+            raise Problem(not_allowed(f"{path}[{i}]", d, f"a distance of at most {MAX_DISTANCE}"))
         distances.append(int(d))
     return distances
+
+
+def _check_size(family: CodeFamily, distance: int, rounds: int, bases: list[Basis], at: str) -> None:
+    """Refuse, before anything is built, a point whose circuit would be too big to compile.
+
+    Detectors are counted from the layout (one per check per round, plus the final data readout's),
+    which costs a fraction of building the circuit.
+    """
+    qubits, detectors = size_estimate(family, distance, rounds, bases[0])
+    if detectors > MAX_DETECTORS:
+        raise Problem(
+            f"{at}: {family.name} at d = {distance} with {rounds} rounds would have about {detectors:,} detectors "
+            f"on {qubits:,} qubits (about {detectors / 1e6:.0f} GB to analyse and decode); at most "
+            f"{MAX_DETECTORS:,} detectors per point: lower the distance or the rounds."
+        )
 
 
 def _parse_bases(value: object, family: CodeFamily, at: str) -> list[Basis]:
@@ -228,8 +273,8 @@ def _geomspace(spec: object, path: str, model: type[NoiseModel]) -> list[float]:
         raise Problem(
             not_allowed(f"{path}[1]", high, f"a number in [{low:g}, {model.p_max:g}] (low <= high <= p_max)")
         )
-    if not is_int(count) or count < 1:
-        raise Problem(not_allowed(f"{path}[2]", count, "an integer >= 1 (how many rates)"))
+    if not is_int(count) or not 1 <= count <= MAX_RATES:
+        raise Problem(not_allowed(f"{path}[2]", count, f"an integer in [1, {MAX_RATES:,}] (how many rates)"))
     values = np.geomspace(float(low), float(high), int(count))
     return [float(f"{v:.{P_DIGITS}g}") for v in values]
 
