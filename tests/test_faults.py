@@ -13,14 +13,17 @@ from __future__ import annotations
 
 import itertools
 import os
+import signal
 import sqlite3
 import subprocess
 from contextlib import closing
 from pathlib import Path
 
 import plugin_decoder
+import psutil
 import pytest
-from test_engine import CLI, write
+from test_cluster import wait_for_rows
+from test_engine import CLI, reap_group, write
 
 from codebench.api import run_sweep
 from codebench.config import parse_sweep
@@ -159,3 +162,38 @@ def test_oversized_sweep_file_exits_2_and_writes_nothing(tmp_path: Path) -> None
     done = cli_with_plugins("sweep", sweep, "--out", tmp_path / "out")
     assert done.returncode == 2 and "at most 10,000" in done.stderr and "Traceback" not in done.stderr
     assert not (tmp_path / "out").exists()
+
+
+# ---------------------------------------------------------------------------
+# orphans: worker processes die with their coordinator
+
+LONG_SWEEP = """\
+name = "long"
+seed = 1
+[stopping]
+failure_target = 1000000000
+shot_budget = 1000000000
+[[study]]
+code = "rotated_surface"
+distances = [5]
+rounds = "d"
+noise = "si1000"
+p = [0.001]
+decoders = ["mwpm"]
+"""
+
+
+def test_kill_9_of_the_coordinator_leaves_no_process_behind(tmp_path: Path) -> None:
+    sweep = write(tmp_path / "long.toml", LONG_SWEEP)
+    proc = subprocess.Popen([*CLI, "sweep", str(sweep), "--out", str(tmp_path / "out"), "--workers", "2", "--quiet"],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
+    try:
+        wait_for_rows(tmp_path / "out" / "results.sqlite", 2, proc)  # the pool is up and working
+        family = psutil.Process(proc.pid).children(recursive=True)
+        assert len(family) >= 3  # fork server, resource tracker, 2 workers
+        os.kill(proc.pid, signal.SIGKILL)
+        proc.wait(timeout=30)
+        gone, alive = psutil.wait_procs(family, timeout=30)
+        assert not alive, f"left running after kill -9 of the coordinator: {[p.cmdline()[-1][:60] for p in alive]}"
+    finally:
+        reap_group(proc.pid, grace=5)

@@ -4,7 +4,10 @@ from __future__ import annotations
 
 import multiprocessing
 import os
+import select
 import signal
+import threading
+import time
 from collections.abc import Mapping
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from typing import Any, ClassVar
@@ -54,9 +57,44 @@ def _ready() -> bool:
     return True
 
 
-def _ignore_interrupts() -> None:
-    """Workers leave Ctrl-C to the coordinator, which stops them itself."""
+def _worker_setup(coordinator: int) -> None:
+    """Workers leave Ctrl-C to the coordinator, which stops them itself, and die with it.
+
+    A coordinator killed outright (``kill -9``, out of memory) cannot stop its
+    workers; each one watches the coordinator's process (a pidfd, opened while
+    the coordinator waits for the pool to start, so the pid cannot have been
+    reused) and exits when it ends, so nothing is left running on a shared machine.
+    """
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    watch_process(coordinator)
+
+
+def watch_process(pid: int) -> None:
+    """Exit this process as soon as process ``pid`` ends (a daemon thread blocked on its pidfd)."""
+    try:
+        handle = os.pidfd_open(pid)
+    except (AttributeError, OSError):  # not Linux >= 5.3: fall back to polling the parent
+        handle = None
+
+    def watch() -> None:
+        if handle is not None:
+            select.select([handle], [], [])
+        else:
+            while os.getppid() == pid or _alive(pid):
+                time.sleep(1.0)
+        os._exit(1)
+
+    threading.Thread(target=watch, name="codebench-coordinator-watch", daemon=True).start()
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
 
 
 class LocalExecutor(Executor):
@@ -77,7 +115,8 @@ class LocalExecutor(Executor):
         context = multiprocessing.get_context(method)
         if method == "forkserver":
             context.set_forkserver_preload(["codebench.engine.worker"])
-        self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_ignore_interrupts)
+        self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_worker_setup,
+                                         initargs=(os.getpid(),))
         self._futures: set[Future[BatchResult]] = set()
         self._closed = False
         # Start every worker now: an interrupt while the pool is still spawning
