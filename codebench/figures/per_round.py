@@ -1,0 +1,215 @@
+"""``per_round_vs_p__<family>``: logical error per round against the rate, one curve per distance.
+
+Each curve has its 95% band; the threshold estimate (finite-size scaling if
+there is one, else a crossing) is drawn with its interval. Where ``p`` is a
+physical error probability, the line logical = physical and the
+pseudo-thresholds on it are drawn too.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from matplotlib.axes import Axes
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.ticker import MaxNLocator
+
+from codebench.analysis.families import Family
+from codebench.figures.canvas import FigurePlan, rate_axes, titles, zero_marker
+from codebench.figures.data import (
+    Curve,
+    chosen_threshold,
+    curves,
+    family_records,
+    method_name,
+    y_range,
+)
+from codebench.figures.labels import (
+    compares_with_physical,
+    family_slug,
+    family_title,
+    rate_meaning,
+    rate_noun,
+)
+from codebench.figures.legend import (
+    ALONG_GUIDE,
+    MARKER,
+    LegendGroup,
+    Obstacle,
+    curve_obstacles,
+    markers,
+    place_legends,
+    to_axes,
+)
+from codebench.figures.style import (
+    GUIDE_INK,
+    INK,
+    MUTED,
+    PANEL,
+    THRESHOLD_INK,
+    THRESHOLD_SHADE,
+    distance_colour,
+    finite,
+    num,
+)
+
+KIND = "per_round_vs_p"
+
+
+@dataclass(frozen=True)
+class ThresholdMark:
+    """The threshold estimate as drawn: value, 95% interval, and how it was found (short)."""
+
+    value: float
+    low: float | None
+    high: float | None
+    method: str
+
+
+@dataclass(frozen=True)
+class PerRoundInputs:
+    curves: tuple[Curve, ...]
+    #: Smallest and largest positive rate or band end (:func:`~codebench.figures.data.y_range`).
+    limits: tuple[float, float]
+    headline: str
+    subline: str
+    x_label: str
+    #: Whether ``p`` is a physical error probability (logical = physical line, pseudo-thresholds).
+    physical: bool
+    #: (pseudo-threshold, distance) of every finite estimate.
+    pseudo: tuple[tuple[float, int], ...]
+    threshold: ThresholdMark | None
+
+
+def plan(family: Family, analysis: dict[str, Any]) -> FigurePlan[PerRoundInputs] | None:
+    """The figure of ``family``, or ``None`` when it has no rate to show."""
+    drawn = curves(family)
+    limits = y_range(drawn)
+    if not drawn or limits is None:
+        return None
+    rate = rate_meaning(family.noise)
+    physical = compares_with_physical(rate)
+    pseudo = tuple((float(r["pseudo_threshold"]), int(r.get("distance") or 0))
+                   for r in family_records(analysis, "pseudo_thresholds", family)
+                   if finite(r.get("pseudo_threshold")) is not None) if physical else ()
+    record = chosen_threshold(family_records(analysis, "thresholds", family))
+    threshold = None if record is None else ThresholdMark(
+        float(record["threshold"]), finite(record.get("low")), finite(record.get("high")), method_name(record))
+    title = family_title(family)
+    caption = f"Logical error per round against {rate_noun(rate, article=True)} for {title}; bands are 95% intervals."
+    if record is not None:
+        caption += (f" Threshold estimate ({method_name(record, short=False)}): {num(record['threshold'])}"
+                    f" [{num(record.get('low'))}, {num(record.get('high'))}], fitted to the failure"
+                    " probability of the whole experiment.")
+    inputs = PerRoundInputs(tuple(drawn), limits, f"Logical error per round vs {rate_noun(rate)}", title, rate.axis_label,
+                            physical, pseudo, threshold)
+    return FigurePlan(f"{KIND}__{family_slug(family)}", KIND, title, caption, inputs, draw)
+
+
+def draw(inputs: PerRoundInputs) -> Figure:
+    drawn = list(inputs.curves)
+    axes = rate_axes(drawn, inputs.limits)
+    fig, ax, y_low, y_high = axes.fig, axes.ax, axes.y_low, axes.y_high
+    any_zero = False
+    for curve in drawn:
+        colour = distance_colour(curve.distance)
+        seen = curve.rate > 0
+        p_seen = curve.p[seen]
+        low = np.where(np.isfinite(curve.low[seen]), np.maximum(curve.low[seen], y_low), y_low)
+        high = np.where(np.isfinite(curve.high[seen]), curve.high[seen], curve.rate[seen])
+        if p_seen.size >= 2:
+            ax.fill_between(p_seen, low, high, color=colour, alpha=0.16, linewidth=0, zorder=1)
+        elif p_seen.size == 1:
+            ax.errorbar(p_seen, curve.rate[seen], yerr=[curve.rate[seen] - low, high - curve.rate[seen]],
+                        fmt="none", ecolor=colour, elinewidth=1.2, capsize=3, zorder=2)
+        ax.plot(p_seen, curve.rate[seen], color=colour, marker="o", markeredgecolor="white",
+                markeredgewidth=0.8, label=f"d = {curve.distance}", zorder=3)
+        if (~seen).any():
+            any_zero = True
+            zero_marker(ax, list(curve.p[~seen]), list(curve.high[~seen]), colour)
+    ax.set_ylim(y_low, y_high)
+    x_low, x_high = min(axes.all_p), max(axes.all_p)
+    if axes.log_x:
+        ax.set_xlim(x_low / 1.15, x_high * 1.15)
+    else:
+        pad = 0.05 * (x_high - x_low) if x_high > x_low else 0.1 * x_high
+        ax.set_xlim(max(0.0, x_low - pad), x_high + pad)
+    xlim = ax.get_xlim()
+    extra: list[tuple[Any, str]] = []
+    obstacles: list[Obstacle] = []
+    if inputs.physical:
+        extra_entries, guide = _physical_guides(ax, inputs, xlim, axes.log_x, y_low, y_high)
+        extra += extra_entries
+        obstacles += guide
+    keep_clear: list[Any] = []
+    if inputs.threshold is not None:
+        entries, keep_clear, column = _draw_threshold(ax, inputs.threshold, xlim)
+        extra += entries
+        obstacles += column
+    ax.set_xlim(*xlim)
+    if not axes.log_x:
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=6))
+    if any_zero:
+        extra.append((Line2D([], [], linestyle="none", marker="v", markersize=7, markerfacecolor="white",
+                             markeredgecolor=MUTED, markeredgewidth=1.5), "0 failures: 95% upper end"))
+    ax.set_xlabel(inputs.x_label)
+    ax.set_ylabel("logical error per round")
+    titles(ax, inputs.headline, inputs.subline)
+    handles, labels = ax.get_legend_handles_labels()
+    place_legends(ax, [LegendGroup(handles, labels), LegendGroup([h for h, _ in extra], [t for _, t in extra])],
+                  curve_obstacles(ax, drawn) + obstacles, avoid=keep_clear)
+    return fig
+
+
+def _physical_guides(ax: Axes, inputs: PerRoundInputs, xlim: tuple[float, float], log_x: bool, y_low: float,
+                     y_high: float) -> tuple[list[tuple[Any, str]], list[Obstacle]]:
+    """The line logical = physical and the pseudo-thresholds on it: legend entries and obstacles."""
+    extra: list[tuple[Any, str]] = []
+    obstacles: list[Obstacle] = []
+    line = np.geomspace(xlim[0], xlim[1], 60) if log_x else np.linspace(xlim[0], xlim[1], 60)
+    (diag,) = ax.plot(line, line, linestyle=(0, (6, 4)), color=GUIDE_INK, linewidth=1.4, zorder=2,
+                      scalex=False, scaley=False)
+    extra.append((diag, "logical = physical"))
+    inside = (line >= y_low) & (line <= y_high)
+    obstacles.append((to_axes(ax, list(line[inside]), list(line[inside])), ALONG_GUIDE))
+    shown = False
+    for value, distance in inputs.pseudo:
+        if xlim[0] <= value <= xlim[1] and y_low <= value <= y_high:
+            ax.plot([value], [value], linestyle="none", marker="D", markersize=7,
+                    markerfacecolor=distance_colour(distance), markeredgecolor=INK, markeredgewidth=0.8, zorder=5)
+            obstacles.append((markers(ax, [value], [value]), MARKER))
+            shown = True
+    if shown:
+        handle = Line2D([], [], linestyle="none", marker="D", markersize=7, markerfacecolor="#ffffff",
+                        markeredgecolor=INK)
+        extra.append((handle, "pseudo-threshold (colour: d)"))
+    return extra, obstacles
+
+
+def _draw_threshold(ax: Axes, mark: ThresholdMark, xlim: tuple[float, float]
+                    ) -> tuple[list[tuple[Any, str]], list[Any], list[Obstacle]]:
+    """Draw the threshold; return its legend entries, artists to keep clear and obstacle points."""
+    value, low, high = mark.value, mark.low, mark.high
+    parts: list[Any] = []
+    if low is not None and high is not None and high > xlim[0] and low < xlim[1]:
+        parts.append(ax.axvspan(max(low, xlim[0]), min(high, xlim[1]), color=THRESHOLD_SHADE, alpha=0.22,
+                                linewidth=0, zorder=0))
+    label = f"threshold {num(value)} ({mark.method})"
+    if xlim[0] <= value <= xlim[1]:
+        parts.append(ax.axvline(value, color=THRESHOLD_INK, linewidth=1.6, zorder=2))
+        x_frac = float(ax.transAxes.inverted().transform(ax.transData.transform((value, 1.0)))[0])
+        right = x_frac < 0.6
+        text = ax.text(value, 0.025, f" {label} ", transform=ax.get_xaxis_transform(),
+                       ha="left" if right else "right", va="bottom", fontsize=11, color=THRESHOLD_INK, zorder=6,
+                       bbox={"boxstyle": "square,pad=0.2", "facecolor": PANEL, "edgecolor": "none", "alpha": 0.9})
+        column = np.column_stack([np.full(40, x_frac), np.linspace(0, 1, 40)])
+        return [(tuple(reversed(parts)), "threshold, 95% interval")], [text], [(column, ALONG_GUIDE * 5)]
+    side = ">" if value > xlim[1] else "<"
+    handle = Line2D([], [], color=THRESHOLD_INK, linewidth=1.6)
+    entries = [(handle, f"{label} {side} sampled range")]
+    if parts:
+        entries.append((parts[0], "threshold 95% interval"))
+    return entries, [], []
