@@ -37,7 +37,7 @@ from codebench.decoders.belief import BeliefLSD, BeliefOSD, check_matrices
 from codebench.decoders.plugins import load_decoder
 from codebench.errors import ConfigError, DecoderError
 from codebench.records import Point
-from codebench.report import _speed_table, write_report
+from codebench.report import speed_table, write_report
 from codebench.results.export import decode_us_per_round, speed_verdict
 from codebench.testing import check_decoder, decoder_checks, run_decoder_check
 
@@ -441,7 +441,7 @@ def test_speed_table_verdicts() -> None:
         {"decoder": "mwpm", "code": "repetition", "noise": "si1000", "distance": 5, "p": 0.001, "rounds": 5,
          "shots": 100, "decode_seconds": 0.001, "decode_us_per_round": 2.0, "noise_options": "{}", "key": "c"},
     ])
-    table = _speed_table(frame, {"a": 1.0, "b": 1.25})
+    table = speed_table(frame, {"a": 1.0, "b": 1.25})
     verdicts = {row[0]: row[-1] for row in table.rows}
     assert getattr(verdicts["bposd"], "text") == "falls behind by 8x"
     by_code = {(row[0], row[1]): row for row in table.rows}
