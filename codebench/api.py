@@ -15,6 +15,7 @@ import pandas as pd
 from codebench.build import size_estimate
 from codebench.codes import get_code_family
 from codebench.config import Sweep, load_sweep, parse_sweep
+from codebench.decoders.plugins import is_spec
 from codebench.engine.cluster import require_packages, scheduler_address
 from codebench.engine.executors import Executor, make_executor
 from codebench.engine.progress import Progress
@@ -134,7 +135,8 @@ def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progre
     try:
         if executor is not None:  # the caller's: it stays open
             return _record(sweep, folder, members, executor, progress, stop_when)
-        with make_executor(*where) as own:
+        isolate = any(is_spec(point.decoder) for point in sweep.points)
+        with make_executor(*where, isolate=isolate) as own:
             return _record(sweep, folder, members, own, progress, stop_when)
     finally:
         lock.release()

@@ -40,7 +40,11 @@ class StoreError(CodebenchError):
 
 
 class ClusterError(CodebenchError):
-    """A run on a cluster could not go on; its finished batches are stored."""
+    """A run on a cluster could not go on; its finished batches are stored (exit status 1)."""
+
+
+class WorkerLost(ClusterError):
+    """A local worker process died under a batch; the finished batches are stored (exit status 1)."""
 
 
 def not_allowed(path: str, value: Any, allowed: str) -> str:

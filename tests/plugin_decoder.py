@@ -206,3 +206,21 @@ class RaisesInCompile(SingleFaultLookup):
 
     def compile(self, dem: stim.DetectorErrorModel) -> None:
         raise RuntimeError("cannot build the graph")
+
+
+class CrashesOnThirdBatch(Matching):
+    """MWPM whose process dies (``CODEBENCH_TEST_CRASH`` = ``segfault`` or ``exit``) on a 4,096-shot batch.
+
+    Batches 0 and 1 (1,024 and 2,048 shots) finish first, so a crash leaves stored batches to resume
+    from. Unset, it decodes like ``mwpm``: the "fixed" decoder of a rerun.
+    """
+
+    name = "crashes_on_third_batch"
+
+    def decode_batch(self, detection_events: np.ndarray, *, bit_packed: bool = True) -> np.ndarray:
+        how = os.environ.get("CODEBENCH_TEST_CRASH")
+        if how and len(detection_events) == 4096:
+            if how == "segfault":
+                os.kill(os.getpid(), signal.SIGSEGV)
+            os._exit(3)
+        return super().decode_batch(detection_events, bit_packed=bit_packed)

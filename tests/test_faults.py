@@ -11,6 +11,7 @@ that promise reproducible counts):
 
 from __future__ import annotations
 
+import csv
 import itertools
 import os
 import signal
@@ -197,3 +198,49 @@ def test_kill_9_of_the_coordinator_leaves_no_process_behind(tmp_path: Path) -> N
         assert not alive, f"left running after kill -9 of the coordinator: {[p.cmdline()[-1][:60] for p in alive]}"
     finally:
         reap_group(proc.pid, grace=5)
+
+
+# ---------------------------------------------------------------------------
+# a worker that dies: one line, exit 1, and a rerun resumes to the uninterrupted counts
+
+CRASH_SWEEP = """\
+name = "crash"
+seed = 4
+[stopping]
+failure_target = 1000000
+shot_budget = 20000
+[[study]]
+code = "rotated_surface"
+distances = [3]
+rounds = "d"
+noise = "si1000"
+p = [0.004]
+decoders = ["plugin_decoder:CrashesOnThirdBatch"]
+"""
+
+
+@pytest.mark.parametrize("how", ["segfault", "exit"])
+@pytest.mark.parametrize("workers", [1, 2])
+def test_a_worker_crashed_by_a_decoder_is_one_line_and_the_rerun_resumes(
+        tmp_path: Path, workers: int, how: str, monkeypatch: pytest.MonkeyPatch) -> None:
+    # With one worker too: a plug-in decoder runs in a worker process, never in the coordinator.
+    sweep = write(tmp_path / "crash.toml", CRASH_SWEEP)
+    out = tmp_path / "out"
+    monkeypatch.setenv("CODEBENCH_TEST_CRASH", how)
+    done = cli_with_plugins("sweep", sweep, "--out", out, "--workers", workers, "--quiet")
+    monkeypatch.delenv("CODEBENCH_TEST_CRASH")
+    assert done.returncode == 1, done.stderr
+    lines = done.stderr.strip().splitlines()
+    assert len(lines) == 1 and "Traceback" not in done.stderr, done.stderr
+    assert "worker process died" in lines[0] and "rotated_surface d=3" in lines[0] and "rerun" in lines[0]
+    assert stored_batches(out) >= 2  # batches 0 and 1 finished before the crash
+    resumed = cli_with_plugins("sweep", sweep, "--out", out, "--workers", workers, "--quiet")
+    assert resumed.returncode == 0, resumed.stderr
+    reference = cli_with_plugins("sweep", sweep, "--out", tmp_path / "reference", "--workers", workers, "--quiet")
+    assert reference.returncode == 0
+    assert shots_and_failures(out) == shots_and_failures(tmp_path / "reference")
+
+
+def shots_and_failures(folder: Path) -> list[tuple[str, str]]:
+    with (folder / "results.csv").open() as handle:
+        return [(row["shots"], row["failures"]) for row in csv.DictReader(handle)]

@@ -38,12 +38,14 @@ def get_executor(name: str) -> type[Executor]:
     return cls
 
 
-def make_executor(workers: int | None, cluster: ClusterSpec | None = None) -> Executor:
+def make_executor(workers: int | None, cluster: ClusterSpec | None = None, isolate: bool = False) -> Executor:
     """The executor for a Dask ``cluster`` if given, else for ``workers`` local workers (all cores when ``None``).
 
-    The caller owns it: use it as a context manager, or call ``close()``.
+    ``isolate``: run batches in a worker process even with one worker (for plug-in decoders,
+    so that one which crashes its process cannot take the coordinator with it). The caller
+    owns the executor: use it as a context manager, or call ``close()``.
     """
     if cluster is not None:
         return get_executor("dask").create({"cluster": cluster})
     count = workers or os.cpu_count() or 1
-    return get_executor("in_process" if count == 1 else "local").create({"workers": count})
+    return get_executor("in_process" if count == 1 and not isolate else "local").create({"workers": count})

@@ -10,12 +10,14 @@ import threading
 import time
 from collections.abc import Mapping
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
 from typing import Any, ClassVar
 
 from codebench.engine.executor import Executor
 from codebench.engine.worker import run_batch
+from codebench.errors import WorkerLost
 from codebench.options import OptionSpec
-from codebench.records import BatchResult, BatchTask
+from codebench.records import BatchResult, BatchTask, Point
 
 __all__ = ["MAX_LOCAL_WORKERS", "InProcessExecutor", "LocalExecutor"]
 
@@ -97,6 +99,13 @@ def _alive(pid: int) -> bool:
     return True
 
 
+def _worker_lost(tasks: list[BatchTask]) -> WorkerLost:
+    labels = sorted({Point.from_params(task.params).label() for task in tasks})
+    shown = "; ".join(labels[:3]) + (f" and {len(labels) - 3} more points" if len(labels) > 3 else "")
+    return WorkerLost(f"a local worker process died (killed, out of memory, or crashed by a decoder) while running "
+                      f"batches of {shown}; the finished batches are stored: rerun the same command to resume")
+
+
 class LocalExecutor(Executor):
     """A pool of ``workers`` local processes (fork server, libraries preloaded)."""
 
@@ -117,7 +126,8 @@ class LocalExecutor(Executor):
             context.set_forkserver_preload(["codebench.engine.worker"])
         self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_worker_setup,
                                          initargs=(os.getpid(),))
-        self._futures: set[Future[BatchResult]] = set()
+        self._futures: dict[Future[BatchResult], BatchTask] = {}
+        self._lost: WorkerLost | None = None
         self._closed = False
         # Start every worker now: an interrupt while the pool is still spawning
         # processes would otherwise leave multiprocessing half set up.
@@ -129,14 +139,31 @@ class LocalExecutor(Executor):
         return 2 * self.workers
 
     def submit(self, task: BatchTask) -> None:
-        self._futures.add(self._pool.submit(run_batch, task))
+        if self._lost is not None:
+            raise self._lost
+        self._futures[self._pool.submit(run_batch, task)] = task
 
     def completed(self, timeout: float) -> list[BatchResult]:
+        if self._lost is not None:
+            raise self._lost
         if not self._futures:
             return []
-        done, pending = wait(self._futures, timeout=timeout, return_when=FIRST_COMPLETED)
-        self._futures = set(pending)
-        return [f.result() for f in done]
+        done, _ = wait(self._futures, timeout=timeout, return_when=FIRST_COMPLETED)
+        results: list[BatchResult] = []
+        broken: list[BatchTask] = []
+        for future in done:
+            task = self._futures.pop(future)
+            if isinstance(future.exception(), BrokenProcessPool):
+                broken.append(task)
+            else:
+                results.append(future.result())  # a worker's own error (a DecoderError...) is raised here
+        if broken:
+            # The pool is unusable now; hand over what finished (to be stored), then stop the run.
+            self._lost = _worker_lost(broken + list(self._futures.values()))
+            self._futures.clear()
+            if not results:
+                raise self._lost
+        return results
 
     def in_flight(self) -> int:
         return len(self._futures)
@@ -145,7 +172,7 @@ class LocalExecutor(Executor):
         # Batches not started are cancelled; running ones finish in their worker, unread.
         for future in self._futures:
             future.cancel()
-        self._futures = set()
+        self._futures.clear()
 
     def summary(self) -> str:
         return f"{self.workers} local worker processes"
