@@ -129,7 +129,7 @@ def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progre
         require_packages(where[1])
     if store_path.exists():
         Store(store_path).close()  # refuses a foreign or damaged file before anything is created
-    fresh = not folder.exists()
+    created = _missing_ancestors(folder)
     lock = RunLock(folder)  # one writer per folder; refused while another live run holds it
     lock.acquire()
     try:
@@ -140,10 +140,21 @@ def _run(sweep: Sweep, out: str | Path | None, executor: Executor | None, progre
             return _record(sweep, folder, members, own, progress, stop_when)
     finally:
         lock.release()
-        if fresh and not store_path.exists():  # failed before any result (cluster unreachable...): leave no trace
+        if created and not store_path.exists():  # failed before any result (cluster unreachable...): leave no trace
             lock.path.unlink(missing_ok=True)
             with contextlib.suppress(OSError):
-                folder.rmdir()
+                for made in created:  # deepest first; stops at a folder something else was put into
+                    made.rmdir()
+
+
+def _missing_ancestors(folder: Path) -> list[Path]:
+    """``folder`` and those of its parents that do not exist yet, deepest first (what a run creates)."""
+    missing = []
+    for candidate in [folder, *folder.parents]:
+        if candidate.exists():
+            break
+        missing.append(candidate)
+    return missing
 
 
 #: Points with more detectors than this are announced before their circuit is built (it takes a while).
@@ -170,9 +181,14 @@ def _record(sweep: Sweep, folder: Path, members: list[tuple[StoredPoint, str]], 
         try:
             execute(RunPlan(sweep.name, sweep.seed, sweep.stopping, members), store, run_executor, reporter,
                     stop_when)
-        finally:
-            frame = results_frame(store)
-            write_csv(frame, folder / CSV_NAME)
+        except BaseException:
+            # The table of what is stored, if it can be written: the first error is the one to report
+            # (with a full disk this write fails too, and leaves no stray file).
+            with contextlib.suppress(CodebenchError):
+                write_csv(results_frame(store), folder / CSV_NAME)
+            raise
+        frame = results_frame(store)
+        write_csv(frame, folder / CSV_NAME)
     return frame
 
 

@@ -39,12 +39,20 @@ class StoreError(CodebenchError):
     """A results store cannot be used."""
 
 
-class ClusterError(CodebenchError):
-    """A run on a cluster could not go on; its finished batches are stored (exit status 1)."""
+class RunFault(CodebenchError):
+    """Work could not go on for a reason outside the input (exit status 1); what was finished is kept."""
+
+
+class ClusterError(RunFault):
+    """A run on a cluster could not go on; its finished batches are stored."""
 
 
 class WorkerLost(ClusterError):
-    """A local worker process died under a batch; the finished batches are stored (exit status 1)."""
+    """A local worker process died under a batch; the finished batches are stored."""
+
+
+class OutputError(RunFault):
+    """A file could not be written (full disk, read-only folder); nothing half-written is left."""
 
 
 def not_allowed(path: str, value: Any, allowed: str) -> str:

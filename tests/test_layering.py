@@ -20,7 +20,7 @@ PACKAGE = Path(__file__).parents[1] / "codebench"
 
 #: Stage of each top-level module or package, lowest first (the foundation is ordered within stage 0).
 STAGES: dict[str, float] = {
-    "errors": 0.0, "stats": 0.1, "layout": 0.2, "options": 0.3, "records": 0.4,
+    "errors": 0.0, "files": 0.05, "stats": 0.1, "layout": 0.2, "options": 0.3, "records": 0.4,
     "circuits": 1,
     "codes": 2,
     "noise": 3,

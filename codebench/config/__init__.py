@@ -58,7 +58,10 @@ _SEED_LIMIT = 2**63
 _TOP_KEYS = ("name", "seed", "stopping", "engine", "cluster", "study")
 _STOPPING_KEYS = ("failure_target", "shot_budget", "relative_precision")
 _ENGINE_KEYS = ("batch_bytes",)
-_NAME_ALLOWED = "a string matching [A-Za-z0-9][A-Za-z0-9_.-]* (it names the output folder)"
+#: Longest sweep name (it names a folder; file systems refuse names over 255 bytes).
+MAX_NAME_LENGTH = 100
+_NAME_ALLOWED = (f"a string of at most {MAX_NAME_LENGTH} characters matching [A-Za-z0-9][A-Za-z0-9_.-]* "
+                 "(it names the output folder)")
 _SEED_ALLOWED = "an integer in [0, 2**63 - 1]"
 
 
@@ -192,7 +195,7 @@ def _parse(data: object, source: str, text: str) -> Sweep:
         raise Problem(not_allowed("the sweep", data, "a table"))
     check_keys(data, "", _TOP_KEYS)
     name = require(data, "name", "a string naming the output folder")
-    if not isinstance(name, str) or NAME_PATTERN.fullmatch(name) is None:
+    if not isinstance(name, str) or NAME_PATTERN.fullmatch(name) is None or len(name) > MAX_NAME_LENGTH:
         raise Problem(not_allowed("name", name, _NAME_ALLOWED))
     seed = require(data, "seed", _SEED_ALLOWED)
     if not is_int(seed) or not 0 <= seed < _SEED_LIMIT:

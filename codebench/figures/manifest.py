@@ -15,8 +15,6 @@ import dataclasses
 import functools
 import hashlib
 import json
-import os
-import tempfile
 from importlib import metadata
 from pathlib import Path
 from typing import Any
@@ -25,6 +23,7 @@ import matplotlib
 import numpy as np
 
 from codebench.figures.canvas import FigurePlan
+from codebench.files import write_text
 
 MANIFEST_NAME = ".figures.json"
 _FORMAT = 1
@@ -105,12 +104,7 @@ class Manifest:
                    "figures": {stem: self.entries[stem] for stem in sorted(self.entries)}}
         if content == self._saved:
             return
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=".figures-", suffix=".json", dir=self.path.parent)
-        with os.fdopen(fd, "w", encoding="utf-8") as handle:
-            json.dump(content, handle, indent=1)
-        os.chmod(tmp, 0o644)  # readable by whoever shares the folder, like the figures
-        os.replace(tmp, self.path)
+        write_text(self.path, json.dumps(content, indent=1))
         self._saved = content
 
 

@@ -15,8 +15,6 @@ speed and a list of cautions. One module per job:
 
 from __future__ import annotations
 
-import os
-import tempfile
 from pathlib import Path
 from typing import Any
 
@@ -24,6 +22,7 @@ import pandas as pd
 
 from codebench.api import load_results
 from codebench.figures import plain_analysis, render_figures
+from codebench.files import write_text
 from codebench.report.cautions import FEW_FAILURES, SMALL_DISTANCE
 from codebench.report.content import Report
 from codebench.report.html import html_page
@@ -60,8 +59,8 @@ def write_report(folder: Path, frame: pd.DataFrame | None = None, analysis: obje
     out_dir = folder / REPORT_DIR
     out_dir.mkdir(parents=True, exist_ok=True)
     index = out_dir / "index.html"
-    _write_text(index, html_page(report))
-    _write_text(out_dir / "summary.md", markdown(report))
+    write_text(index, html_page(report))
+    write_text(out_dir / "summary.md", markdown(report))
     return index
 
 
@@ -74,11 +73,3 @@ def _analyze(frame: pd.DataFrame) -> tuple[dict[str, Any], str | None]:
     except Exception as exc:  # noqa: BLE001 - the report must still be written
         return plain_analysis(None), f"the analysis failed ({type(exc).__name__}: {exc}); no fits are shown."
 
-
-def _write_text(path: Path, text: str) -> None:
-    """Write ``text`` atomically (a reader never sees half a page)."""
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}-", suffix=path.suffix, dir=path.parent)
-    with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
-        handle.write(text)
-    os.chmod(tmp, 0o644)  # a page to share, not a private temporary file
-    os.replace(tmp, path)

@@ -4,12 +4,11 @@ from __future__ import annotations
 
 import json
 import math
-import os
-import tempfile
 from pathlib import Path
 
 import pandas as pd
 
+from codebench.files import write_atomically
 from codebench.noise import NOISE_MODELS
 from codebench.records import BatchSchedule
 from codebench.results.store import Store
@@ -99,11 +98,5 @@ def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
 
 
 def write_csv(frame: pd.DataFrame, path: str | Path) -> Path:
-    """Write ``frame`` atomically (a crash never leaves half a CSV)."""
-    target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=".results-", suffix=".csv", dir=target.parent)
-    with os.fdopen(fd, "w", newline="") as handle:
-        frame.to_csv(handle, index=False, float_format="%.10g")
-    os.replace(tmp, target)
-    return target
+    """Write ``frame`` atomically (a crash never leaves half a CSV, a failure no stray file)."""
+    return write_atomically(path, lambda handle: frame.to_csv(handle, index=False, float_format="%.10g"))

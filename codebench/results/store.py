@@ -11,13 +11,17 @@ batches in flight and can never count one twice.
 
 from __future__ import annotations
 
+import contextlib
 import json
+import os
 import sqlite3
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterator
+from urllib.parse import quote
 
-from codebench.errors import StoreError
+from codebench.errors import OutputError, StoreError
 from codebench.records import BatchResult, Point, Stopping
 
 #: Written into the SQLite header so a foreign file is recognised ("CBNC").
@@ -70,14 +74,29 @@ class Store:
 
     def __init__(self, path: str | Path, create: bool = True) -> None:
         self.path = Path(path)
+        self.read_only = not create
         # An empty file holds nothing to lose (a run killed before its first write): start it afresh.
         existed = self.path.exists() and (self.path.is_dir() or self.path.stat().st_size > 0)
         if not existed and not create:
             raise StoreError(f"no results store at '{self.path}'.")
         if existed:
             self._check_foreign()
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        self._db = sqlite3.connect(self.path, isolation_level=None, timeout=30)
+        if self.read_only:
+            self._db = _connect_read_only(self.path)
+            self._check_intact()
+            return
+        if existed and not _writable(self.path):
+            raise StoreError(f"'{self.path}' is read-only (file or folder not writable, or a read-only file "
+                             "system); analyze, figures, report and export read it as it is; to add shots, copy "
+                             "the folder somewhere writable and run there.")
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise OutputError(f"cannot create the folder '{self.path.parent}': {exc.strerror or exc}.") from exc
+        try:
+            self._db = sqlite3.connect(self.path, isolation_level=None, timeout=30)
+        except sqlite3.Error as exc:
+            raise OutputError(f"cannot create the results store '{self.path}': {exc}.") from exc
         try:
             if existed:
                 self._check_intact()
@@ -89,6 +108,10 @@ class Store:
             self._db.execute("PRAGMA journal_mode=WAL")
             self._db.execute("PRAGMA synchronous=NORMAL")
             self._db.executescript(_SCHEMA)
+        except sqlite3.OperationalError as exc:  # the file is fine; the disk is full, or not writable
+            self._db.close()
+            raise OutputError(f"cannot write the results store '{self.path}': {exc}; free some space (or "
+                              "choose another --out) and run again.") from exc
         except sqlite3.DatabaseError as exc:
             self._db.close()
             raise StoreError(f"'{self.path}' is not a usable results store: {exc}.") from exc
@@ -170,7 +193,17 @@ class Store:
             )
 
     def _transaction(self) -> _Transaction:
-        return _Transaction(self._db)
+        return _Transaction(self._db, self._write_failed)
+
+    def _write_failed(self, exc: sqlite3.Error) -> OutputError:
+        """One line for a write the disk refused: which file, what is safely stored, what to do."""
+        try:
+            stored = int(self._db.execute("SELECT COUNT(*) FROM batches").fetchone()[0])
+            held = f"{stored:,} finished batches are stored"
+        except sqlite3.Error:
+            held = "the batches committed before are stored"
+        return OutputError(f"cannot write the results store '{self.path}': {exc}; {held}: free some space and "
+                           "rerun the same command to resume.")
 
     # reading -------------------------------------------------------------
 
@@ -210,11 +243,49 @@ class Store:
 
 
 class _Transaction:
-    def __init__(self, db: sqlite3.Connection) -> None:
+    """One write transaction; a write the disk refuses becomes the store's one-line OutputError."""
+
+    def __init__(self, db: sqlite3.Connection, failed: Callable[[sqlite3.Error], OutputError]) -> None:
         self._db = db
+        self._failed = failed
 
     def __enter__(self) -> None:
-        self._db.execute("BEGIN IMMEDIATE")
+        try:
+            self._db.execute("BEGIN IMMEDIATE")
+        except sqlite3.OperationalError as exc:
+            raise self._failed(exc) from exc
 
-    def __exit__(self, exc_type: Any, *rest: Any) -> None:
-        self._db.execute("ROLLBACK" if exc_type else "COMMIT")
+    def __exit__(self, exc_type: Any, error: Any, trace: Any) -> None:
+        if exc_type is not None:
+            with contextlib.suppress(sqlite3.Error):
+                self._db.execute("ROLLBACK")
+            if isinstance(error, sqlite3.OperationalError):
+                raise self._failed(error) from error
+            return
+        try:
+            self._db.execute("COMMIT")
+        except sqlite3.OperationalError as exc:
+            with contextlib.suppress(sqlite3.Error):
+                self._db.execute("ROLLBACK")
+            raise self._failed(exc) from exc
+
+
+def _writable(path: Path) -> bool:
+    """Whether the store file and its folder (for the write-ahead log) can be written."""
+    if not (os.access(path, os.W_OK) and os.access(path.parent, os.W_OK)):
+        return False
+    try:  # root passes os.access even on a read-only file system
+        return not (os.statvfs(path.parent).f_flag & os.ST_RDONLY)
+    except OSError:
+        return True
+
+
+def _connect_read_only(path: Path) -> sqlite3.Connection:
+    """Open for reading only; on a read-only folder, where SQLite cannot create its shared-memory
+    file, as immutable (nothing can be writing to it there)."""
+    try:
+        db = sqlite3.connect(f"file:{quote(str(path))}?mode=ro", uri=True, isolation_level=None, timeout=30)
+        db.execute("SELECT COUNT(*) FROM sqlite_master").fetchone()
+        return db
+    except sqlite3.OperationalError:
+        return sqlite3.connect(f"file:{quote(str(path))}?immutable=1", uri=True, isolation_level=None)
