@@ -11,13 +11,17 @@ that promise reproducible counts):
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import itertools
 import os
+import resource
+import shutil
 import signal
 import sqlite3
 import subprocess
 from contextlib import closing
+from collections.abc import Iterator
 from pathlib import Path
 
 import plugin_decoder
@@ -244,3 +248,80 @@ def test_a_worker_crashed_by_a_decoder_is_one_line_and_the_rerun_resumes(
 def shots_and_failures(folder: Path) -> list[tuple[str, str]]:
     with (folder / "results.csv").open() as handle:
         return [(row["shots"], row["failures"]) for row in csv.DictReader(handle)]
+
+
+# ---------------------------------------------------------------------------
+# a full disk: one line, nothing stray, and a rerun with space resumes to the uninterrupted counts
+
+FILL_SWEEP = """\
+name = "fill"
+seed = 6
+[stopping]
+failure_target = 1000000
+shot_budget = 400000
+[[study]]
+code = "repetition"
+distances = [3, 5]
+rounds = "d"
+noise = "circuit_depolarizing"
+p = [0.001, 0.002, 0.004, 0.008]
+decoders = ["mwpm"]
+"""
+
+
+@contextlib.contextmanager
+def small_disk(folder: Path, size: str) -> Iterator[Path]:
+    """A tmpfs of ``size`` mounted at ``folder`` (skips the test where mounting is not allowed)."""
+    folder.mkdir()
+    done = subprocess.run(["mount", "-t", "tmpfs", "-o", f"size={size}", "tmpfs", str(folder)],
+                          capture_output=True, text=True)
+    if done.returncode != 0:
+        pytest.skip(f"cannot mount a tmpfs here ({done.stderr.strip()}); the file-size-limit case covers it")
+    try:
+        yield folder
+    finally:
+        subprocess.run(["umount", "-l", str(folder)], capture_output=True)
+
+
+def run_limited(args: list[object], file_size: int | None) -> subprocess.CompletedProcess[str]:
+    """The command line, its files limited to ``file_size`` bytes (a disk that fills; SIGXFSZ ignored)."""
+    def limit() -> None:
+        signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
+        if file_size is not None:
+            resource.setrlimit(resource.RLIMIT_FSIZE, (file_size, file_size))
+    return subprocess.run([*CLI, *map(str, args)], capture_output=True, text=True, timeout=300, preexec_fn=limit)
+
+
+def leftovers(folder: Path) -> list[str]:
+    """Files in ``folder`` other than the store, its SQLite companions and the run lock."""
+    expected = {"results.sqlite", "results.sqlite-wal", "results.sqlite-shm", "results.lock", "results.csv"}
+    return sorted(p.name for p in folder.iterdir() if p.name not in expected)
+
+
+@pytest.mark.parametrize("how", ["tmpfs", "file-size limit"])
+def test_a_full_disk_is_one_line_leaves_nothing_stray_and_the_rerun_resumes(tmp_path: Path, how: str) -> None:
+    sweep = write(tmp_path / "fill.toml", FILL_SWEEP)
+    reference = run_limited(["sweep", sweep, "--out", tmp_path / "reference", "--workers", 1, "--quiet"], None)
+    assert reference.returncode == 0, reference.stderr
+    with contextlib.ExitStack() as stack:
+        if how == "tmpfs":
+            disk = stack.enter_context(small_disk(tmp_path / "disk", "2m"))
+            filler = disk / "filler"
+            # Leave about 160 kB: the store's write-ahead log takes a page or two per batch.
+            free = shutil.disk_usage(disk).free
+            filler.write_bytes(b"\0" * max(0, free - 160_000))
+            out, limit = disk / "out", None
+        else:
+            out, limit = tmp_path / "out", 160_000
+        full = run_limited(["sweep", sweep, "--out", out, "--workers", 1, "--quiet"], limit)
+        assert full.returncode == 1, full.stderr
+        lines = full.stderr.strip().splitlines()
+        assert len(lines) == 1 and "Traceback" not in full.stderr, full.stderr
+        assert "cannot write the results store" in lines[0] and "rerun the same command to resume" in lines[0]
+        assert stored_batches(out) > 0 and leftovers(out) == []
+        if how == "tmpfs":
+            filler.unlink()
+        resumed = run_limited(["sweep", sweep, "--out", out, "--workers", 1, "--quiet"], None)
+        assert resumed.returncode == 0, resumed.stderr
+        assert shots_and_failures(out) == shots_and_failures(tmp_path / "reference")
+        assert leftovers(out) == []
