@@ -325,3 +325,35 @@ def test_a_full_disk_is_one_line_leaves_nothing_stray_and_the_rerun_resumes(tmp_
         assert resumed.returncode == 0, resumed.stderr
         assert shots_and_failures(out) == shots_and_failures(tmp_path / "reference")
         assert leftovers(out) == []
+
+
+# ---------------------------------------------------------------------------
+# read-only stores: read as they are; a sweep on one says "read-only", not "damaged"
+
+
+@contextlib.contextmanager
+def read_only_copy(source: Path, folder: Path) -> Iterator[Path]:
+    """A copy of ``source`` on a read-only tmpfs (skips the test where mounting is not allowed)."""
+    with small_disk(folder, "64m") as disk:
+        shutil.copytree(source, disk / "results")
+        done = subprocess.run(["mount", "-o", "remount,ro", str(disk)], capture_output=True, text=True)
+        if done.returncode != 0:
+            pytest.skip(f"cannot remount read-only here ({done.stderr.strip()})")
+        yield disk / "results"
+
+
+def test_a_read_only_store_is_analysed_and_exported_and_refused_for_a_sweep(tmp_path: Path) -> None:
+    sweep = write(tmp_path / "fill.toml", FILL_SWEEP.replace("shot_budget = 400000", "shot_budget = 20000"))
+    made = run_limited(["sweep", sweep, "--out", tmp_path / "made", "--workers", 1, "--quiet"], None)
+    assert made.returncode == 0, made.stderr
+    before = {p.name: p.read_bytes() for p in (tmp_path / "made").iterdir() if p.is_file()}
+    with read_only_copy(tmp_path / "made", tmp_path / "ro") as folder:
+        analysed = run_limited(["analyze", folder, "--format", "json"], None)
+        assert analysed.returncode == 0, analysed.stderr
+        exported = run_limited(["export", folder, "--csv", tmp_path / "copy.csv"], None)
+        assert exported.returncode == 0, exported.stderr
+        assert (tmp_path / "copy.csv").read_text() == before["results.csv"].decode()
+        refused = run_limited(["sweep", sweep, "--out", folder, "--workers", 1, "--quiet"], None)
+        assert refused.returncode == 2 and "read-only" in refused.stderr and "damaged" not in refused.stderr
+        assert len(refused.stderr.strip().splitlines()) == 1
+        assert {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()} == before
