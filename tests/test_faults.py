@@ -20,6 +20,7 @@ import shutil
 import signal
 import sqlite3
 import subprocess
+import time
 from contextlib import closing
 from collections.abc import Iterator
 from pathlib import Path
@@ -357,3 +358,57 @@ def test_a_read_only_store_is_analysed_and_exported_and_refused_for_a_sweep(tmp_
         assert refused.returncode == 2 and "read-only" in refused.stderr and "damaged" not in refused.stderr
         assert len(refused.stderr.strip().splitlines()) == 1
         assert {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()} == before
+
+
+# ---------------------------------------------------------------------------
+# Ctrl-C while the worker pool starts
+
+
+@pytest.mark.parametrize("delay", [0.2, 0.5, 0.8, 1.2, 1.8])
+def test_ctrl_c_while_workers_start_prints_no_traceback(tmp_path: Path, delay: float) -> None:
+    # Ctrl-C in a terminal sends SIGINT to the whole process group: fork server and workers too.
+    sweep = write(tmp_path / "long.toml", LONG_SWEEP)
+    proc = subprocess.Popen([*CLI, "sweep", str(sweep), "--out", str(tmp_path / "out"), "--workers", "2", "--quiet"],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True, start_new_session=True)
+    try:
+        time.sleep(delay)
+        os.killpg(proc.pid, signal.SIGINT)
+        deadline = time.monotonic() + 60
+        while proc.poll() is None and time.monotonic() < deadline:
+            time.sleep(0.5)
+            if proc.poll() is None:  # the SIGINT fell in the start-up window, which ignores it: again
+                with contextlib.suppress(ProcessLookupError):
+                    os.killpg(proc.pid, signal.SIGINT)
+        _, err = proc.communicate(timeout=30)
+    finally:
+        reap_group(proc.pid, grace=5)
+    assert proc.returncode == 130, err
+    assert "Traceback" not in err and len(err.strip().splitlines()) == 1, err
+
+
+# ---------------------------------------------------------------------------
+# a plug-in decoder installed on the coordinator only
+
+
+def test_a_plugin_missing_on_the_dask_workers_is_named_as_such(tmp_path: Path,
+                                                                monkeypatch: pytest.MonkeyPatch) -> None:
+    from distributed import Client, LocalCluster
+
+    from codebench.engine.dask_executor import DaskExecutor
+    from codebench.errors import ClusterError
+
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True, dashboard_address=":0") as local:
+        with Client(local) as client:
+            client.wait_for_workers(1, timeout=60)
+            # Only now is the plug-in importable, and only here: the worker started without it.
+            (tmp_path / "coordinator_only.py").write_text(
+                "from codebench.decoders.matching import Matching\n\n"
+                "class Here(Matching):\n    name = 'here'\n")
+            monkeypatch.syspath_prepend(str(tmp_path))
+            sweep = write(tmp_path / "plug.toml", CRASH_SWEEP.replace("plugin_decoder:CrashesOnThirdBatch",
+                                                                      "coordinator_only:Here"))
+            with DaskExecutor(client) as executor, pytest.raises(ClusterError) as info:
+                run_sweep(sweep, out=tmp_path / "out", executor=executor, progress=False)
+    message = str(info.value)
+    assert "cannot load the plug-in decoder 'coordinator_only:Here'" in message
+    assert "loads on the coordinator" in message and "\n" not in message

@@ -38,6 +38,7 @@ from codebench.engine.executor import Executor
 from codebench.engine.jobqueue_options import check_option_names, import_jobqueue
 from codebench.engine.worker import (
     EnvironmentMismatch,
+    PluginMissing,
     environment,
     environment_difference,
     run_batch_checked,
@@ -119,6 +120,8 @@ class DaskExecutor(Executor):
         except (OSError, TimeoutError):  # a worker that just left: the next poll sees who is there
             return
         for address, answer in sorted(answers.items()):
+            if isinstance(answer, BaseException) and not isinstance(answer, ImportError):
+                continue  # the worker died or left while answering: the next poll sees who is there
             if isinstance(answer, BaseException):
                 raise CodebenchError(f"Dask worker {address} cannot run codebench ({answer}); install codebench "
                                      "and the sweep's plug-in decoders in the workers' environment")
@@ -207,6 +210,8 @@ class DaskExecutor(Executor):
             return
         if isinstance(error, EnvironmentMismatch):
             raise CodebenchError(f"{error}; install the same versions on the workers so counts stay reproducible")
+        if isinstance(error, PluginMissing):
+            raise ClusterError(str(error))
         if isinstance(error, ImportError):  # the task could not even be unpacked on the worker
             raise ClusterError(f"a Dask worker cannot import what a batch needs ({error}); install codebench "
                                "and the sweep's plug-in decoders in the workers' environment")

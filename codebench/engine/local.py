@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
+import contextlib
 import multiprocessing
 import os
 import select
 import signal
 import threading
 import time
-from collections.abc import Mapping
+from collections.abc import Iterator, Mapping
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from typing import Any, ClassVar
@@ -99,6 +100,19 @@ def _alive(pid: int) -> bool:
     return True
 
 
+@contextlib.contextmanager
+def _sigint_ignored() -> Iterator[None]:
+    """Ignore SIGINT while worker processes start (all of them are up when it ends)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
+
+
 def _worker_lost(tasks: list[BatchTask]) -> WorkerLost:
     labels = sorted({Point.from_params(task.params).label() for task in tasks})
     shown = "; ".join(labels[:3]) + (f" and {len(labels) - 3} more points" if len(labels) > 3 else "")
@@ -124,15 +138,17 @@ class LocalExecutor(Executor):
         context = multiprocessing.get_context(method)
         if method == "forkserver":
             context.set_forkserver_preload(["codebench.engine.worker"])
-        self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context, initializer=_worker_setup,
-                                         initargs=(os.getpid(),))
+        # The fork server and the workers start with SIGINT ignored (an ignored signal survives exec): a
+        # Ctrl-C while the fork server imports its preloaded modules printed its traceback. The
+        # coordinator ignores it for that moment too; a Ctrl-C in that window is lost.
+        with _sigint_ignored():
+            self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context,
+                                             initializer=_worker_setup, initargs=(os.getpid(),))
+            for future in [self._pool.submit(_ready) for _ in range(self.workers)]:
+                future.result()
         self._futures: dict[Future[BatchResult], BatchTask] = {}
         self._lost: WorkerLost | None = None
         self._closed = False
-        # Start every worker now: an interrupt while the pool is still spawning
-        # processes would otherwise leave multiprocessing half set up.
-        for future in [self._pool.submit(_ready) for _ in range(self.workers)]:
-            future.result()
 
     @property
     def capacity(self) -> int:

@@ -277,7 +277,19 @@ def run_batch_checked(task: BatchTask, expected: dict[str, str]) -> BatchResult:
     details = environment_difference(environment(), expected)
     if details:
         raise EnvironmentMismatch(f"worker on {platform.node()} differs from the coordinator: {details}")
+    decoder = str(task.params.get("decoder", ""))
+    if is_spec(decoder):
+        try:
+            get_decoder(decoder)
+        except DecoderError as exc:  # importable on the coordinator (the sweep file was accepted), not here
+            raise PluginMissing(f"the Dask worker on {platform.node()} cannot load the plug-in decoder "
+                                f"{decoder!r} ({exc}); it loads on the coordinator: install it in the workers' "
+                                "environment too") from None
     return run_batch(task)
+
+
+class PluginMissing(DecoderError):
+    """A plug-in decoder the coordinator loads is missing on a worker."""
 
 
 def environment_difference(worker: dict[str, str], coordinator: dict[str, str]) -> str:
