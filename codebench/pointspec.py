@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import re
 
 from codebench.config import load_sweep, parse_sweep
 from codebench.errors import ConfigError, not_allowed
@@ -34,5 +35,24 @@ def point_from_args(args: argparse.Namespace) -> Point:
         rounds = int(rounds)
     study = {"code": args.code, "distances": [args.distance], "rounds": rounds, "basis": [args.basis],
              "noise": args.noise, "p": [args.p], "decoders": ["mwpm"]}
-    sweep = parse_sweep({"name": "circuit", "seed": 0, "study": [study]}, source="command line")
+    try:
+        sweep = parse_sweep({"name": "circuit", "seed": 0, "study": [study]}, source="command line")
+    except ConfigError as exc:
+        raise ConfigError(_in_option_names(str(exc))) from None
     return sweep.points[0]
+
+
+#: Sweep-file key paths of the study built from the options, and the options that set them.
+_OPTION_OF = {"distances[0]": "--distance", "code": "--code", "rounds": "--rounds", "basis[0]": "--basis",
+              "noise": "--noise", "p[0]": "--p"}
+_KEY_PATH = re.compile(r"study\[0\]\.(" + "|".join(re.escape(k) for k in _OPTION_OF) + r")(?![\w\[])")
+
+
+def _in_option_names(message: str) -> str:
+    """A sweep-file message about the study built from the options, in the options' own names.
+
+    >>> _in_option_names("command line: study[0].distances[0] must be an odd integer >= 3; got 4.")
+    '--distance must be an odd integer >= 3; got 4.'
+    """
+    text = message.removeprefix("command line: ")
+    return _KEY_PATH.sub(lambda match: _OPTION_OF[match.group(1)], text)

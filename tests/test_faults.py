@@ -412,3 +412,19 @@ def test_a_plugin_missing_on_the_dask_workers_is_named_as_such(tmp_path: Path,
     message = str(info.value)
     assert "cannot load the plug-in decoder 'coordinator_only:Here'" in message
     assert "loads on the coordinator" in message and "\n" not in message
+
+
+# ---------------------------------------------------------------------------
+# the command line's own option names in its messages
+
+
+@pytest.mark.parametrize(("args", "fragment"), [
+    (["--distance", "4"], "--distance must be an odd integer >= 3 for rotated_surface; got 4."),
+    (["--distance", "3", "--p", "0.5"], "--p must be a number in [0, 0.1] for si1000; got 0.5."),
+    (["--distance", "3", "--rounds", "0"], "--rounds must be"),
+])
+def test_circuit_options_are_named_in_messages(args: list[str], fragment: str) -> None:
+    done = subprocess.run([*CLI, "circuit", "--code", "rotated_surface", "--noise", "si1000", "--p", "0.001", *args],
+                          capture_output=True, text=True, timeout=60)
+    assert done.returncode == 2 and done.stderr.strip() == f"codebench: {fragment}" or fragment in done.stderr
+    assert "study[0]" not in done.stderr and len(done.stderr.strip().splitlines()) == 1
