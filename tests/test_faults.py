@@ -426,5 +426,5 @@ def test_a_plugin_missing_on_the_dask_workers_is_named_as_such(tmp_path: Path,
 def test_circuit_options_are_named_in_messages(args: list[str], fragment: str) -> None:
     done = subprocess.run([*CLI, "circuit", "--code", "rotated_surface", "--noise", "si1000", "--p", "0.001", *args],
                           capture_output=True, text=True, timeout=60)
-    assert done.returncode == 2 and done.stderr.strip() == f"codebench: {fragment}" or fragment in done.stderr
+    assert done.returncode == 2 and fragment in done.stderr, done.stderr
     assert "study[0]" not in done.stderr and len(done.stderr.strip().splitlines()) == 1
