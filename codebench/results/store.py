@@ -140,7 +140,8 @@ class Store:
             raise StoreError(f"'{self.path}' is an SQLite file written by another program; left untouched.")
         if verdict != ["ok"]:
             self._db.close()
-            raise StoreError(f"'{self.path}' is damaged ({'; '.join(verdict[:2])}); left untouched: move it "
+            found = " ".join("; ".join(verdict[:2]).split())  # SQLite's report spans lines: one line here
+            raise StoreError(f"'{self.path}' is damaged ({found}); left untouched: move it "
                              "away (or choose another --out) and run again.")
         if version > SCHEMA_VERSION:
             self._db.close()
