@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING, Any
 if TYPE_CHECKING:
     import pandas as pd
 
+    from codebench.analysis.result import AnalysisResult
     from codebench.api import export_csv, load_results, run_sweep
 
 from codebench.errors import (
@@ -26,7 +27,7 @@ from codebench.errors import (
 __version__ = "0.1.0"
 
 
-def analyze(frame: pd.DataFrame, **options: Any) -> dict[str, Any]:
+def analyze(frame: pd.DataFrame, **options: Any) -> AnalysisResult:
     """Fit thresholds, pseudo-thresholds, Lambda, scaling law and projections; see :mod:`codebench.analysis`."""
     from codebench.analysis import analyze as _analyze
 

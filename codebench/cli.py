@@ -9,11 +9,16 @@ from __future__ import annotations
 import argparse
 import sys
 from pathlib import Path
-from typing import Callable, NoReturn, Sequence
+from typing import TYPE_CHECKING, Callable, NoReturn, Sequence
 
 from codebench.build import noisy_circuit
 from codebench.errors import ClusterError, CodebenchError, Interrupted, not_allowed
 from codebench.stats import INTERVALS
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from codebench.analysis import AnalysisResult
 
 EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
@@ -78,7 +83,7 @@ def _targets(text: str) -> list[float]:
     return values
 
 
-def _analysis(args: argparse.Namespace) -> tuple[object, dict[str, object]]:
+def _analysis(args: argparse.Namespace) -> tuple[pd.DataFrame, AnalysisResult]:
     from codebench.analysis import analyze
     from codebench.api import load_results
 
@@ -93,7 +98,7 @@ def cmd_analyze(args: argparse.Namespace) -> int:
 
     _, result = _analysis(args)
     if args.format == "json":
-        print(json.dumps(result, indent=2, allow_nan=False))
+        print(json.dumps(result.to_json(), indent=2, allow_nan=False))
     else:
         print(analysis_table(result))
     return EXIT_OK
@@ -103,7 +108,7 @@ def cmd_figures(args: argparse.Namespace) -> int:
     from codebench.figures import write_figures
 
     frame, result = _analysis(args)
-    paths = write_figures(Path(args.dir), frame, result)  # type: ignore[arg-type]
+    paths = write_figures(Path(args.dir), frame, result)
     print(f"wrote {len(paths)} files into {Path(args.dir) / 'figures'}")
     return EXIT_OK
 
@@ -112,7 +117,7 @@ def cmd_report(args: argparse.Namespace) -> int:
     from codebench.report import write_report
 
     frame, result = _analysis(args)
-    path = write_report(Path(args.dir), frame, result)  # type: ignore[arg-type]
+    path = write_report(Path(args.dir), frame, result)
     print(f"wrote {path} and {path.parent / 'summary.md'}")
     return EXIT_OK
 
@@ -188,7 +193,7 @@ def cmd_forecast(args: argparse.Namespace) -> int:
                       workers=args.workers, seed=args.seed, out=args.out, improve=improve, method=args.method,
                       progress=not args.quiet)
     if args.format == "json":
-        print(json.dumps(result, indent=2, allow_nan=False))
+        print(json.dumps(result.to_json(), indent=2, allow_nan=False))
     else:
         print(forecast_table(result))
     if args.out:

@@ -53,12 +53,12 @@ def main() -> int:
     wall = time.perf_counter() - start
     print(forecast_table(result))
     print()
-    budget = result["budget"]
-    print(f"work planned {budget['work']:.3g} detector-shots, spent {budget['work_spent']:.3g}; "
-          f"hard limit reached: {budget['hard_limit_reached']}")
-    lam, low, high = result["lambda"], result["lambda_low"], result["lambda_high"]
+    budget = result.budget
+    print(f"work planned {budget.work:.3g} detector-shots, spent {budget.work_spent:.3g}; "
+          f"hard limit reached: {budget.hard_limit_reached}")
+    lam, low, high = result.lam, result.lam_low, result.lam_high
     print(f"wall_seconds {wall:.1f}")
-    if lam is None:
+    if lam is None or low is None or high is None:
         print("lambda none")
         half = float("inf")
     else:

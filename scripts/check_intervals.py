@@ -87,11 +87,10 @@ def main() -> int:
             for seed in seeds[: max(3, len(seeds) // 2)]:
                 result = forecast(DEVICES / f"{device}.toml", distances=(3, 5), method={distance: "extrapolated"},
                                   work=args.work * 4, workers=2, seed=seed)
-                row = next(r for r in result["distances"] if r["distance"] == distance)
+                row = result.at(distance)
                 # Back to per experiment (rounds = d), the reference's quantity.
                 to_total = (lambda e: None if e is None else (1 - (1 - 2 * e) ** distance) / 2)
-                trials.append(Trial(seed, to_total(row["per_round_rate"]), to_total(row["low"]),
-                                    to_total(row["high"])))
+                trials.append(Trial(seed, to_total(row.per_round_rate), to_total(row.low), to_total(row.high)))
             rows["extrapolated"] = trials
         for method, trials in rows.items():
             s = summarise(trials, ref.rate)

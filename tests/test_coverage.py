@@ -70,9 +70,8 @@ def test_extrapolated_coverage() -> None:
     trials = []
     for seed in range(1, 11):
         row = forecast(IMPROVED, distances=(3, 5), method={3: "extrapolated"}, work=1.2e8, workers=2,
-                       seed=seed)["distances"][0]
-        total = [None if e is None else (1 - (1 - 2 * e) ** 3) / 2 for e in (row["per_round_rate"], row["low"],
-                                                                              row["high"])]
+                       seed=seed).distances[0]
+        total = [None if e is None else (1 - (1 - 2 * e) ** 3) / 2 for e in (row.per_round_rate, row.low, row.high)]
         trials.append(Trial(seed, *total))
     summary = summarise(trials, ref.rate)
     print(f"extrapolated coverage {summary}")

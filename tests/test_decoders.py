@@ -472,8 +472,8 @@ def test_forecast_reports_decoder_speed() -> None:
 
     result = forecast(REPO / "configs" / "devices" / "larkspur_current.toml", distances=(3, 5), work=9e8,
                       workers=1)
-    for row in result["distances"]:
-        assert row["decode_us_per_round"] > 0
-        assert row["keeps_up"] is (row["decode_us_per_round"] <= row["round_duration_us"])
+    for row in result.distances:
+        assert row.decode_us_per_round is not None and row.decode_us_per_round > 0
+        assert row.keeps_up is (row.decode_us_per_round <= row.round_duration_us)
     assert {"decode_us_per_round", "keeps_up"} <= set(CSV_COLUMNS)
     assert "Decoder mwpm per round on one worker: d = 3:" in forecast_table(result)

@@ -25,7 +25,9 @@ from __future__ import annotations
 import json
 import math
 import time
+from dataclasses import replace
 from pathlib import Path
+from types import SimpleNamespace
 from typing import Any
 
 import pytest
@@ -39,7 +41,9 @@ from codebench.forecast import (
     improve_device,
     parse_improve,
 )
+from codebench.forecast.details import ExtrapolatedDetails, StratifiedDetails
 from codebench.forecast.plan import WORK_PER_SECOND
+from codebench.forecast.result import DistanceForecast, ForecastResult, LambdaSummary
 from codebench.noise.calibration import load_device
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -73,7 +77,7 @@ def tomita_svore_idle(t_us: float, t1_us: float, t2_us: float) -> float:
 
 
 @pytest.fixture(scope="module")
-def improved(tmp_path_factory: pytest.TempPathFactory) -> tuple[dict[str, Any], Path]:
+def improved(tmp_path_factory: pytest.TempPathFactory) -> tuple[ForecastResult, Path]:
     out = tmp_path_factory.mktemp("forecast-improved")
     return forecast(IMPROVED, distances=(3, 5), work=2e9, workers=2, out=out), out
 
@@ -81,9 +85,9 @@ def improved(tmp_path_factory: pytest.TempPathFactory) -> tuple[dict[str, Any], 
 # --- the result: keys, types, files --------------------------------------------------------------
 
 
-def test_json_keys_and_types(improved: tuple[dict[str, Any], Path]) -> None:
+def test_json_keys_and_types(improved: tuple[ForecastResult, Path]) -> None:
     """The keys the issue lists, with their types; plain JSON without NaN (common practice)."""
-    result, _ = improved
+    result = improved[0].to_json()
     json.dumps(result, allow_nan=False)
     for key, kind in (("device", str), ("code", str), ("basis", str), ("decoder", str),
                       ("round_duration_us", float), ("distances", list), ("lambda", float),
@@ -105,24 +109,24 @@ def test_json_keys_and_types(improved: tuple[dict[str, Any], Path]) -> None:
     assert result["cautions"] == list(CAUTIONS)
 
 
-def test_files_written(improved: tuple[dict[str, Any], Path]) -> None:
+def test_files_written(improved: tuple[ForecastResult, Path]) -> None:
     """--out writes the JSON (the same dict), a CSV with one row per distance, and the figure."""
     result, out = improved
-    assert json.loads((out / "forecast.json").read_text()) == result
+    assert json.loads((out / "forecast.json").read_text()) == result.to_json()
     lines = (out / "forecast.csv").read_text().strip().splitlines()
-    assert len(lines) == 1 + len(result["distances"]) and lines[0].startswith("distance,qubits,")
+    assert len(lines) == 1 + len(result.distances) and lines[0].startswith("distance,qubits,")
     assert (out / "forecast.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert b"<svg" in (out / "forecast.svg").read_bytes()[:2000]
     assert (out / "store" / "results.sqlite").is_file()
 
 
-def test_qubits_and_round_duration(improved: tuple[dict[str, Any], Path]) -> None:
+def test_qubits_and_round_duration(improved: tuple[ForecastResult, Path]) -> None:
     """2 d^2 - 1 qubits; a round of the improved device is 200 + 5 * 20 + 4 * 35 + 400 = 840 ns (common practice)."""
     result, _ = improved
-    assert [r["qubits"] for r in result["distances"]] == [17, 49]
-    assert result["round_duration_us"] == pytest.approx(0.840, abs=1e-12)
-    for row in result["distances"]:
-        assert row["per_second_rate"] == pytest.approx(row["per_round_rate"] / 0.840e-6, rel=1e-12)
+    assert [r.qubits for r in result.distances] == [17, 49]
+    assert result.round_duration_us == pytest.approx(0.840, abs=1e-12)
+    for row in result.distances:
+        assert row.per_second_rate == pytest.approx(row.per_round_rate / 0.840e-6, rel=1e-12)
 
 
 def test_current_device_round_duration() -> None:
@@ -135,49 +139,49 @@ def test_current_device_round_duration() -> None:
     assert model.round_duration_ns(ideal) == pytest.approx(1135.0)
 
 
-def test_direct_interval_is_wilson(improved: tuple[dict[str, Any], Path]) -> None:
+def test_direct_interval_is_wilson(improved: tuple[ForecastResult, Path]) -> None:
     """A direct estimate is k / n over d rounds with the Wilson interval mapped per round (Wilson 1927)."""
     result, _ = improved
-    for row in result["distances"]:
-        assert row["method"] == "direct"
-        k, n, r = row["failures"], row["shots"], row["distance"]
+    for row in result.distances:
+        assert row.method == "direct"
+        k, n, r = row.failures, row.shots, row.distance
         low, high = wilson(k, n)
-        assert row["per_round_rate"] == pytest.approx(per_round(k / n, r), rel=1e-9)
-        assert row["low"] == pytest.approx(per_round(low, r), rel=1e-9)
-        assert row["high"] == pytest.approx(per_round(high, r), rel=1e-9)
+        assert row.per_round_rate == pytest.approx(per_round(k / n, r), rel=1e-9)
+        assert row.low == pytest.approx(per_round(low, r), rel=1e-9)
+        assert row.high == pytest.approx(per_round(high, r), rel=1e-9)
 
 
-def test_lambda_of_two_distances(improved: tuple[dict[str, Any], Path]) -> None:
+def test_lambda_of_two_distances(improved: tuple[ForecastResult, Path]) -> None:
     """Two distances: the fit is exact, Lambda = eps_3 / eps_5 (Acharya et al. 2025, Eq. 1); > 1 below threshold."""
     result, _ = improved
-    eps3, eps5 = (r["per_round_rate"] for r in result["distances"])
-    assert result["lambda"] == pytest.approx(eps3 / eps5, rel=1e-9)
-    assert result["lambda_low"] > 1.0
+    eps3, eps5 = (r.per_round_rate for r in result.distances)
+    assert result.lam == pytest.approx(eps3 / eps5, rel=1e-9)
+    assert result.lam_low > 1.0
 
 
-def test_targets_follow_the_lambda_model(improved: tuple[dict[str, Any], Path]) -> None:
+def test_targets_follow_the_lambda_model(improved: tuple[ForecastResult, Path]) -> None:
     """Smallest odd d >= 3 with C / Lambda^((d+1)/2) <= target (Acharya et al. 2025, Eq. 1), 2 d^2 - 1 qubits."""
     result, _ = improved
-    c, lam = result["lambda_fit"]["C"], result["lambda"]
-    for target in result["targets"]:
-        d = next(d for d in range(3, 1002, 2) if c / lam ** ((d + 1) / 2) <= target["target"])
-        assert target["distance"] == d
-        assert target["qubits"] == 2 * d * d - 1
-        assert target["extrapolation"] is (d > 5)
+    c, lam = result.lambda_fit.C, result.lam
+    for target in result.targets:
+        d = next(d for d in range(3, 1002, 2) if c / lam ** ((d + 1) / 2) <= target.target)
+        assert target.distance == d
+        assert target.qubits == 2 * d * d - 1
+        assert target.extrapolation is (d > 5)
 
 
-def test_break_even_matches_the_idle_formula(improved: tuple[dict[str, Any], Path]) -> None:
+def test_break_even_matches_the_idle_formula(improved: tuple[ForecastResult, Path]) -> None:
     """p_idle over one round from T1, T2 (Tomita & Svore 2014, Eqs. 9-10); verdicts follow from it."""
     result, _ = improved
-    be = result["break_even"]
+    be = result.break_even
     expected = tomita_svore_idle(0.840, 200.0, 180.0)  # the improved device lists no qubits: its defaults
-    assert be["idle_error_best"] == pytest.approx(expected, rel=1e-12)
-    assert be["idle_error_median"] == pytest.approx(expected, rel=1e-12)
-    for row, entry in zip(result["distances"], be["distances"]):
-        eps = row["per_round_rate"]
-        assert entry["beats_best"] is (eps < expected)
+    assert be.idle_error_best == pytest.approx(expected, rel=1e-12)
+    assert be.idle_error_median == pytest.approx(expected, rel=1e-12)
+    for row, entry in zip(result.distances, be.distances):
+        eps = row.per_round_rate
+        assert entry.beats_best is (eps < expected)
         want = "beats the best idle qubit" if eps < expected else "does not"
-        assert entry["verdict"] == want
+        assert entry.verdict == want
 
 
 def test_break_even_best_and_median_over_listed_qubits() -> None:
@@ -189,23 +193,23 @@ def test_break_even_best_and_median_over_listed_qubits() -> None:
     assert min(values) == pytest.approx(idle_error(round_us, 140.0, 150.0), rel=1e-12)  # qubit m6
     from codebench.forecast.breakeven import break_even as _break_even
 
-    be = _break_even(device, round_us, [{"distance": 3, "per_round_rate": 7e-3, "high": 8e-3}])
-    assert be["best_qubit"] == "m6"
-    assert be["idle_error_best"] == pytest.approx(values[0], rel=1e-12)
-    assert be["idle_error_median"] == pytest.approx(values[8], rel=1e-12)
+    be = _break_even(device, round_us, [SimpleNamespace(distance=3, per_round_rate=7e-3, high=8e-3)])
+    assert be.best_qubit == "m6"
+    assert be.idle_error_best == pytest.approx(values[0], rel=1e-12)
+    assert be.idle_error_median == pytest.approx(values[8], rel=1e-12)
     assert values[0] < 7e-3 < values[8]
-    assert be["distances"][0]["verdict"] == "beats the median idle qubit"
+    assert be.distances[0].verdict == "beats the median idle qubit"
 
 
 # --- direct against extrapolated ----------------------------------------------------------------
 
 
-def _agree(a: dict[str, Any], b: dict[str, Any]) -> None:
-    assert a["low"] <= b["high"] and b["low"] <= a["high"], (a, b)
-    se_a = (math.log(a["high"]) - math.log(a["low"])) / (2 * Z95)
-    se_b = (math.log(b["high"]) - math.log(b["low"])) / (2 * Z95)
-    z = abs(math.log(a["per_round_rate"]) - math.log(b["per_round_rate"])) / math.hypot(se_a, se_b)
-    assert z <= Z95, (a["per_round_rate"], b["per_round_rate"], z)
+def _agree(a: DistanceForecast, b: DistanceForecast) -> None:
+    assert a.low <= b.high and b.low <= a.high, (a, b)
+    se_a = (math.log(a.high) - math.log(a.low)) / (2 * Z95)
+    se_b = (math.log(b.high) - math.log(b.low)) / (2 * Z95)
+    z = abs(math.log(a.per_round_rate) - math.log(b.per_round_rate)) / math.hypot(se_a, se_b)
+    assert z <= Z95, (a.per_round_rate, b.per_round_rate, z)
 
 
 @pytest.mark.parametrize("device, budget", [(IMPROVED, 8.0), (GOAL, 12.0)], ids=["improved", "goal"])
@@ -214,12 +218,13 @@ def test_direct_and_extrapolated_agree_at_d3(device: Path, budget: float) -> Non
     direct = forecast(device, distances=(3, 5), method={3: "direct"}, work=budget * WORK_PER_SECOND, workers=2)
     extrapolated = forecast(device, distances=(3, 5), method={3: "extrapolated"}, work=budget * WORK_PER_SECOND,
                             workers=2)
-    a, b = direct["distances"][0], extrapolated["distances"][0]
-    assert a["method"] == "direct" and b["method"].startswith("extrapolated (power law over scales 2-5.65685")
-    assert b["scales"] == [2.0, 2.828427, 4.0, 5.656854]
+    a, b = direct.distances[0], extrapolated.distances[0]
+    assert a.method == "direct" and b.method.startswith("extrapolated (power law over scales 2-5.65685")
+    assert isinstance(b.details, ExtrapolatedDetails)
+    assert b.details.scales == (2.0, 2.828427, 4.0, 5.656854)
     _agree(a, b)
     # The fitted exponent is near the number of faults of a minimum-weight logical error, (d + 1) / 2 = 2.
-    assert abs(b["exponent"] - 2.0) < 0.35
+    assert b.details.exponent is not None and abs(b.details.exponent - 2.0) < 0.35
 
 
 @pytest.mark.slow
@@ -228,8 +233,8 @@ def test_direct_and_extrapolated_agree_at_d5_goal() -> None:
     direct = forecast(GOAL, distances=(3, 5), method={3: "direct", 5: "direct"}, work=300 * WORK_PER_SECOND,
                       workers=2)
     extrapolated = forecast(GOAL, distances=(3, 5), method={5: "extrapolated"}, work=30 * WORK_PER_SECOND, workers=2)
-    a, b = direct["distances"][1], extrapolated["distances"][1]
-    assert a["failures"] >= 100
+    a, b = direct.distances[1], extrapolated.distances[1]
+    assert a.failures >= 100
     _agree(a, b)
 
 
@@ -285,17 +290,17 @@ def test_short_budget_still_answers_every_distance() -> None:
     tests never assert on wall-clock time.)
     """
     result = forecast(GOAL, distances=(3, 5, 7), budget_seconds=6.0, workers=2)
-    assert [r["distance"] for r in result["distances"]] == [3, 5, 7]
-    assert all(r["method"] for r in result["distances"])
-    json.dumps(result, allow_nan=False)
+    assert [r.distance for r in result.distances] == [3, 5, 7]
+    assert all(r.method for r in result.distances)
+    json.dumps(result.to_json(), allow_nan=False)
 
 
 @pytest.mark.slow
 def test_bench_goal_current_device() -> None:
     """scripts/bench_forecast.py's precision goal: Lambda within +-15% on the current device (its time is benched there)."""
     result = forecast(CURRENT, distances=(3, 5, 7), work=60 * WORK_PER_SECOND, workers=2)
-    lam = result["lambda"]
-    assert max(result["lambda_high"] - lam, lam - result["lambda_low"]) / lam <= 0.15
+    lam = result.lam
+    assert max(result.lam_high - lam, lam - result.lam_low) / lam <= 0.15
 
 
 # --- command-line errors -------------------------------------------------------------------------
@@ -352,10 +357,10 @@ def test_cli_bad_device_files(tmp_path: Path, capsys: pytest.CaptureFixture[str]
 # --- determinism, defaults, bases ----------------------------------------------------------------
 
 
-def _numbers(result: dict[str, Any]) -> list[Any]:
+def _numbers(result: ForecastResult) -> list[Any]:
     """Every planned or estimated number (not the timings) of a forecast."""
     keys = ("distance", "per_round_rate", "low", "high", "method", "shots", "failures", "w_sampled", "spectrum")
-    return [[row.get(k) for k in keys] for row in result["distances"]] + [result["lambda"], result["targets"]]
+    return [[row.to_json().get(k) for k in keys] for row in result.distances] + [result.lam, result.targets]
 
 
 def _busy(seconds: float) -> None:
@@ -380,7 +385,7 @@ def test_same_numbers_on_a_busy_machine_and_any_worker_count() -> None:
         hog.join()
     single = forecast(GOAL, workers=1, **args)  # type: ignore[arg-type]
     assert _numbers(quiet) == _numbers(busy) == _numbers(single)
-    assert any(r["method_kind"] == "stratified" for r in quiet["distances"])
+    assert any(r.method_kind == "stratified" for r in quiet.distances)
 
 
 def test_heavy_hex_defaults_to_flag_matching() -> None:
@@ -388,34 +393,35 @@ def test_heavy_hex_defaults_to_flag_matching() -> None:
     forecast is below threshold (Lambda > 1), as the flag-qubit heavy-hexagon code should be at 1e-3 two-qubit
     error (Chamberland et al., PRX 10, 011022 (2020), from memory: threshold near 0.45% for circuit noise)."""
     result = forecast(IMPROVED, code="heavy_hex", distances=(3, 5), work=1.5e9, workers=2)
-    assert result["decoder"] == "flag_matching"
-    assert result["lambda"] is not None and result["lambda"] > 1
-    assert forecast(IMPROVED, code="rotated_surface", distances=(3, 5), work=1e8, workers=1)["decoder"] == "mwpm"
+    assert result.decoder == "flag_matching"
+    assert result.lam is not None and result.lam > 1
+    assert forecast(IMPROVED, code="rotated_surface", distances=(3, 5), work=1e8, workers=1).decoder == "mwpm"
 
 
 def test_both_bases_and_the_logical_qubit() -> None:
     """--basis both: each basis forecast; the logical qubit fails when either does, 1 - (1 - eZ)(1 - eX)
     (independent bases, common practice)."""
     result = forecast(IMPROVED, distances=(3, 5), basis="both", work=1e9, workers=2)
-    assert result["bases"] == ["Z", "X"]
-    for i, row in enumerate(result["distances"]):
-        z = result["per_basis"]["Z"][i]["per_round_rate"]
-        x = result["per_basis"]["X"][i]["per_round_rate"]
-        assert row["per_round_rate"] == pytest.approx(1 - (1 - z) * (1 - x), rel=1e-12)
-        assert row["low"] <= row["per_round_rate"] <= row["high"]
+    assert result.bases == ("Z", "X") and result.basis == "Z,X" and result.per_basis is not None
+    for i, row in enumerate(result.distances):
+        z = result.per_basis["Z"][i].per_round_rate
+        x = result.per_basis["X"][i].per_round_rate
+        assert z is not None and x is not None and row.method_kind == "combined"
+        assert row.per_round_rate == pytest.approx(1 - (1 - z) * (1 - x), rel=1e-12)
+        assert row.low <= row.per_round_rate <= row.high
 
 
 def test_no_target_distance_when_lambda_is_not_constant() -> None:
     """Near threshold (Lambda interval reaching 1) the targets get no distance and say why (issue requirement)."""
     from codebench.forecast.estimators import targets
 
-    fit = {"lambda": 1.05, "lambda_low": 0.9, "lambda_high": 1.2, "C": 0.05, "log_cov": [[0.01, 0.0], [0.0, 0.01]],
-           "consistency_p": 0.5, "chi2": 0.1, "dof": 1}
+    fit = LambdaSummary(lam=1.05, lam_low=0.9, lam_high=1.2, C=0.05, log_cov=((0.01, 0.0), (0.0, 0.01)),
+                        distances=(3, 5, 7), chi2=0.1, dof=1, inflation=1.0, consistency_p=0.5)
     rows = targets("rotated_surface", fit, [1e-9], 7)
-    assert rows[0]["distance"] is None and "reaches 1" in rows[0]["not_projected"]
-    fit.update({"lambda": 3.0, "lambda_low": 2.5, "lambda_high": 3.5, "consistency_p": 1e-4, "chi2": 15.0})
+    assert rows[0].distance is None and "reaches 1" in str(rows[0].not_projected)
+    fit = replace(fit, lam=3.0, lam_low=2.5, lam_high=3.5, consistency_p=1e-4, chi2=15.0)
     rows = targets("rotated_surface", fit, [1e-9], 7)
-    assert rows[0]["distance"] is None and "disagree" in rows[0]["not_projected"]
+    assert rows[0].distance is None and "disagree" in str(rows[0].not_projected)
 
 
 def test_improve_noise_reuses_the_f_of_w_table(tmp_path: Path) -> None:
@@ -425,13 +431,15 @@ def test_improve_noise_reuses_the_f_of_w_table(tmp_path: Path) -> None:
     base = forecast(GOAL, distances=(5, 7), work=4e8, workers=2, out=tmp_path, method="stratified")
     scaled = forecast(GOAL, distances=(5, 7), work=4e8, workers=2, out=tmp_path, method="stratified",
                       improve={"noise": 0.8})
-    for a, b in zip(base["distances"], scaled["distances"]):
-        assert b["table_reused_from"] == "Larkspur Aster-X (goal)"
-        assert b["shots"] >= a["shots"]
-        assert b["per_round_rate"] < a["per_round_rate"]
+    for a, b in zip(base.distances, scaled.distances):
+        assert isinstance(b.details, StratifiedDetails)
+        assert b.details.table_reused_from == "Larkspur Aster-X (goal)"
+        assert b.shots >= a.shots
+        assert b.per_round_rate < a.per_round_rate
     other = forecast(GOAL, distances=(5, 7), work=4e8, workers=2, out=tmp_path, method="stratified",
                      improve={"gate_2q_error": 0.5})
-    assert all(r["table_reused_from"] is None for r in other["distances"])
+    assert all(isinstance(r.details, StratifiedDetails) and r.details.table_reused_from is None
+               for r in other.distances)
 
 
 def test_hard_time_limit_is_reported(monkeypatch: pytest.MonkeyPatch) -> None:
@@ -440,9 +448,9 @@ def test_hard_time_limit_is_reported(monkeypatch: pytest.MonkeyPatch) -> None:
 
     monkeypatch.setattr(plan, "HARD_LIMIT", 0.0)
     result = forecast(IMPROVED, distances=(3, 5), budget_seconds=5.0, workers=2)
-    assert result["budget"]["hard_limit_reached"]
-    assert all(any("cut short" in f for f in r["flags"]) for r in result["distances"])
-    assert any("hard time limit" in n for n in result["notes"])
+    assert result.budget.hard_limit_reached
+    assert all(any("cut short" in f for f in r.flags) for r in result.distances)
+    assert any("hard time limit" in n for n in result.notes)
 
 
 def test_near_threshold_targets_are_not_projected_far() -> None:
@@ -450,8 +458,8 @@ def test_near_threshold_targets_are_not_projected_far() -> None:
     near threshold Lambda drifts with d (common practice); close targets are still projected."""
     from codebench.forecast.estimators import targets
 
-    fit = {"lambda": 1.228, "lambda_low": 1.18, "lambda_high": 1.279, "C": 0.0263,
-           "log_cov": [[0.01, 0.004], [0.004, 0.0004]], "consistency_p": 0.33, "chi2": 0.95, "dof": 1}
+    fit = LambdaSummary(lam=1.228, lam_low=1.18, lam_high=1.279, C=0.0263, log_cov=((0.01, 0.004), (0.004, 0.0004)),
+                        distances=(3, 5, 7), chi2=0.95, dof=1, inflation=1.0, consistency_p=0.33)
     far, near = targets("rotated_surface", fit, [1e-9, 1.5e-2], 7)
-    assert far["distance"] is None and "near threshold" in far["not_projected"]
-    assert near["distance"] is not None and near["distance"] <= 14 and near["not_projected"] is None
+    assert far.distance is None and "near threshold" in str(far.not_projected)
+    assert near.distance is not None and near.distance <= 14 and near.not_projected is None

@@ -248,4 +248,4 @@ def test_repetition_code_forecast_is_stratified_without_error() -> None:
 
     result = forecast(DEVICES / "larkspur_improved.toml", code="repetition", distances=(3, 5), work=3e7,
                       workers=1, method="stratified")
-    assert all(r["per_round_rate"] is not None or r["high"] is not None for r in result["distances"])
+    assert all(r.per_round_rate is not None or r.high is not None for r in result.distances)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import base64
+import dataclasses
 import importlib.util
 import json
 import re
@@ -18,7 +19,7 @@ import pytest
 
 import codebench
 import codebench.figures as figures_module
-from codebench.analysis import analyze
+from codebench.analysis import AnalysisResult, analyze
 from codebench.figures import distance_colour, write_figures
 from codebench.report import write_report
 
@@ -73,7 +74,7 @@ def _parse(path: Path) -> _Page:
 
 
 @pytest.fixture(scope="module")
-def sweep(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, pd.DataFrame, dict[str, Any]]:
+def sweep(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, pd.DataFrame, AnalysisResult]:
     folder = tmp_path_factory.mktemp("larkspur")
     frame = codebench.run_sweep(CONFIG, out=folder, workers=1, progress=False)
     analysis = analyze(frame, bootstrap=40, seed=3)
@@ -81,12 +82,12 @@ def sweep(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, pd.DataFrame,
 
 
 @pytest.fixture(scope="module")
-def report(sweep: tuple[Path, pd.DataFrame, dict[str, Any]]) -> Path:
+def report(sweep: tuple[Path, pd.DataFrame, AnalysisResult]) -> Path:
     folder, frame, analysis = sweep
     return write_report(folder, frame, analysis)
 
 
-def test_figures_are_written_as_png_and_svg(sweep: tuple[Path, pd.DataFrame, dict[str, Any]], tmp_path: Path) -> None:
+def test_figures_are_written_as_png_and_svg(sweep: tuple[Path, pd.DataFrame, AnalysisResult], tmp_path: Path) -> None:
     _, frame, analysis = sweep
     before = dict(matplotlib.rcParams)
     stale = tmp_path / "figures" / "per_round_vs_p__left_from_an_old_run.png"
@@ -113,11 +114,11 @@ def test_figures_are_written_as_png_and_svg(sweep: tuple[Path, pd.DataFrame, dic
     for family in ("repetition_Z_circuit_depolarizing_mwpm_rd", "repetition_Z_circuit_depolarizing_mwpm_correlated_rd"):
         assert f"per_round_vs_p__{family}" in names
     assert "decoders_vs_p__repetition_Z_circuit_depolarizing_rd" in names
-    lambdas = [r for r in analysis["lambdas"] if r.get("lambda") is not None and r.get("C") is not None]
+    lambdas = [r for r in analysis.lambdas if r.lam is not None and r.C is not None]
     assert len([n for n in names if n.startswith("lambda_vs_d__")]) == len(lambdas)
 
 
-def test_figures_are_reproducible(sweep: tuple[Path, pd.DataFrame, dict[str, Any]], tmp_path: Path) -> None:
+def test_figures_are_reproducible(sweep: tuple[Path, pd.DataFrame, AnalysisResult], tmp_path: Path) -> None:
     """Same inputs, same bytes: no dates and no random ids in the files."""
     _, frame, analysis = sweep
     part = frame[frame["decoder"] == "mwpm"]
@@ -135,7 +136,7 @@ def test_distance_colours_are_fixed_and_distinct() -> None:
 
 
 def test_report_embeds_every_figure_and_says_what_was_run(
-    sweep: tuple[Path, pd.DataFrame, dict[str, Any]], report: Path
+    sweep: tuple[Path, pd.DataFrame, AnalysisResult], report: Path
 ) -> None:
     folder, frame, _ = sweep
     assert report == folder / "report" / "index.html"
@@ -161,7 +162,7 @@ def test_report_embeds_every_figure_and_says_what_was_run(
         assert heading in text
 
 
-def test_summary_markdown_has_the_tables(sweep: tuple[Path, pd.DataFrame, dict[str, Any]], report: Path) -> None:
+def test_summary_markdown_has_the_tables(sweep: tuple[Path, pd.DataFrame, AnalysisResult], report: Path) -> None:
     folder, frame, analysis = sweep
     summary = (folder / "report" / "summary.md").read_text(encoding="utf-8")
     assert summary.startswith("# codebench report: larkspur_tiny")
@@ -170,14 +171,14 @@ def test_summary_markdown_has_the_tables(sweep: tuple[Path, pd.DataFrame, dict[s
     for title in ("### Thresholds", "### Pseudo-thresholds", "### Error suppression", "### Scaling law",
                   "### Projections", "## Cautions", "## Notes on the fits"):
         assert title in summary
-    if analysis["thresholds"]:
+    if analysis.thresholds:
         assert "finite-size scaling" in summary or "| crossing |" in summary
     for png in (folder / "figures").glob("*.png"):
         assert f"](../figures/{png.name})" in summary
     assert f"**seed**: {CONFIG['seed']}" in summary
 
 
-def test_cautions_list_points_with_few_failures(sweep: tuple[Path, pd.DataFrame, dict[str, Any]],
+def test_cautions_list_points_with_few_failures(sweep: tuple[Path, pd.DataFrame, AnalysisResult],
                                                 report: Path) -> None:
     _, frame, _ = sweep
     html_text = report.read_text(encoding="utf-8")
@@ -190,7 +191,7 @@ def test_cautions_list_points_with_few_failures(sweep: tuple[Path, pd.DataFrame,
 
 
 def test_single_distance_gives_a_report_that_says_the_fit_is_missing(
-    sweep: tuple[Path, pd.DataFrame, dict[str, Any]], tmp_path: Path
+    sweep: tuple[Path, pd.DataFrame, AnalysisResult], tmp_path: Path
 ) -> None:
     _, frame, _ = sweep
     single = frame[frame["distance"] == 3].reset_index(drop=True)
@@ -204,10 +205,10 @@ def test_single_distance_gives_a_report_that_says_the_fit_is_missing(
     assert (tmp_path / "report" / "summary.md").exists()
 
 
-def test_text_from_data_is_escaped(sweep: tuple[Path, pd.DataFrame, dict[str, Any]], tmp_path: Path) -> None:
+def test_text_from_data_is_escaped(sweep: tuple[Path, pd.DataFrame, AnalysisResult], tmp_path: Path) -> None:
     _, frame, analysis = sweep
     labelled = frame[frame["decoder"] == "mwpm"].assign(study="<b>bold</b> & co")
-    notes = dict(analysis, notes=["<script>alert(1)</script> note"])
+    notes = dataclasses.replace(analysis, general_notes=("<script>alert(1)</script> note",))
     index = write_report(tmp_path, frame=labelled, analysis=notes)
     html_text = index.read_text(encoding="utf-8")
     assert "<b>bold</b>" not in html_text and "<script>" not in html_text
@@ -216,7 +217,7 @@ def test_text_from_data_is_escaped(sweep: tuple[Path, pd.DataFrame, dict[str, An
     assert "<b>bold</b>" not in (tmp_path / "report" / "summary.md").read_text(encoding="utf-8")
 
 
-def test_report_loads_folder_when_given_nothing(sweep: tuple[Path, pd.DataFrame, dict[str, Any]],
+def test_report_loads_folder_when_given_nothing(sweep: tuple[Path, pd.DataFrame, AnalysisResult],
                                                tmp_path: Path) -> None:
     folder, _, _ = sweep
     index = write_report(folder)

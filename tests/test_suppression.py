@@ -23,6 +23,7 @@ import pytest
 
 from codebench.analysis.families import Family, group_families
 from codebench.analysis.projections import project
+from codebench.analysis.records import LambdaEstimate
 from codebench.analysis.suppression import (
     lambda_fits,
     per_round_with_variance,
@@ -139,13 +140,13 @@ def test_acharya_2023_lambda_value() -> None:
     fits, pairs, notes = lambda_fits(family, None)
     assert len(fits) == 1 and len(pairs) == 1
     fit = fits[0]
-    assert fit["distances"] == [3, 5]
-    assert abs(fit["lambda"] - 1.039) <= 0.010  # published 1.039 +- 0.010 (from memory)
-    assert fit["lambda"] == pytest.approx(0.03028 / 0.02914, rel=1e-5)
-    assert pairs[0]["lambda"] == pytest.approx(fit["lambda"], rel=1e-12)
-    assert fit["low"] < fit["lambda"] < fit["high"]
+    assert fit.distances == (3, 5)
+    assert abs(fit.lam - 1.039) <= 0.010  # published 1.039 +- 0.010 (from memory)
+    assert fit.lam == pytest.approx(0.03028 / 0.02914, rel=1e-5)
+    assert pairs[0].lam == pytest.approx(fit.lam, rel=1e-12)
+    assert fit.low < fit.lam < fit.high
     assert any("no threshold estimate" in note for note in notes)
-    assert_plain_json(fits + pairs)
+    assert_plain_json([r.to_json() for r in [*fits, *pairs]])
 
 
 def test_acharya_2023_lambda_uncertainty_from_quoted_per_cycle_errors() -> None:
@@ -153,9 +154,9 @@ def test_acharya_2023_lambda_uncertainty_from_quoted_per_cycle_errors() -> None:
     # published +-0.010 on Lambda is their propagation.
     family = only_family(acharya_2023_frame(0.00023, 0.00016))
     fit = lambda_fits(family, None)[0][0]
-    sigma = (math.log(fit["high"]) - math.log(fit["low"])) / (2 * 1.959963984540054) * fit["lambda"]
+    sigma = (math.log(fit.high) - math.log(fit.low)) / (2 * 1.959963984540054) * fit.lam
     assert sigma == pytest.approx(0.010, abs=0.001)
-    assert abs(fit["lambda"] - 1.039) <= 0.010
+    assert abs(fit.lam - 1.039) <= 0.010
 
 
 # ---------------------------------------------------------------------------
@@ -173,14 +174,14 @@ def test_lambda_fit_recovers_known_value(lam: float) -> None:
     fits, pairs, _ = lambda_fits(family, 0.01)
     assert len(fits) == 1 and len(pairs) == 3
     fit = fits[0]
-    assert fit["distances"] == DISTANCES and fit["dof"] == 2
-    assert fit["low"] < lam < fit["high"]
-    assert fit["lambda"] == pytest.approx(lam, rel=0.05)
-    assert fit["C"] == pytest.approx(0.1, rel=0.15)
+    assert list(fit.distances) == DISTANCES and fit.dof == 2
+    assert fit.low < lam < fit.high
+    assert fit.lam == pytest.approx(lam, rel=0.05)
+    assert fit.C == pytest.approx(0.1, rel=0.15)
     # Asymmetric in Lambda: symmetric in ln Lambda.
-    assert math.log(fit["high"] / fit["lambda"]) == pytest.approx(math.log(fit["lambda"] / fit["low"]), rel=1e-9)
-    assert [pair["distances"] for pair in pairs] == [[3, 5], [5, 7], [7, 9]]
-    assert_plain_json(fits + pairs)
+    assert math.log(fit.high / fit.lam) == pytest.approx(math.log(fit.lam / fit.low), rel=1e-9)
+    assert [pair.distances for pair in pairs] == [(3, 5), (5, 7), (7, 9)]
+    assert_plain_json([r.to_json() for r in [*fits, *pairs]])
 
 
 def lambda_coverage(lam: float, reps: int) -> tuple[float, float]:
@@ -193,9 +194,9 @@ def lambda_coverage(lam: float, reps: int) -> tuple[float, float]:
         rng = np.random.default_rng(seed)
         frame = base.assign(failures=rng.binomial(shots, totals))
         fits, pairs, _ = lambda_fits(only_family(frame), 0.01)
-        fit_hits += fits[0]["low"] <= lam <= fits[0]["high"]
-        pair = next(p for p in pairs if p["distances"] == [3, 5])
-        pair_hits += pair["low"] <= lam <= pair["high"]
+        fit_hits += fits[0].low <= lam <= fits[0].high
+        pair = next(p for p in pairs if p.distances == (3, 5))
+        pair_hits += pair.low <= lam <= pair.high
     return fit_hits / reps, pair_hits / reps
 
 
@@ -223,11 +224,11 @@ def test_scatter_beyond_counting_noise_widens_the_interval() -> None:
     noisy.loc[noisy["distance"] == 5, "failures"] = (noisy.loc[noisy["distance"] == 5, "failures"] * 1.3).round()
     fit_clean = lambda_fits(only_family(clean), 0.01)[0][0]
     fit_noisy = lambda_fits(only_family(noisy), 0.01)[0][0]
-    assert fit_clean["inflation"] == 1.0
-    assert fit_noisy["inflation"] > 1.0
-    assert fit_noisy["chi2"] / fit_noisy["dof"] == pytest.approx(fit_noisy["inflation"])
+    assert fit_clean.inflation == 1.0
+    assert fit_noisy.inflation > 1.0
+    assert fit_noisy.chi2 / fit_noisy.dof == pytest.approx(fit_noisy.inflation)
     def width(fit: dict[str, Any]) -> float:
-        return math.log(fit["high"] / fit["low"])
+        return math.log(fit.high / fit.low)
 
     assert width(fit_noisy) > 3 * width(fit_clean)
 
@@ -237,8 +238,8 @@ def test_without_threshold_keeps_the_decreasing_run() -> None:
     values = {3: 0.02, 5: 0.01, 7: 0.015}
     frame = make_frame([3, 5, 7], [0.001], lambda d, p: values[d], shots=10**7)
     fits, pairs, notes = lambda_fits(only_family(frame), None)
-    assert fits[0]["distances"] == [3, 5]
-    assert fits[0]["lambda"] == pytest.approx(2.0, rel=1e-3)  # 0.02 / 0.01
+    assert fits[0].distances == (3, 5)
+    assert fits[0].lam == pytest.approx(2.0, rel=1e-3)  # 0.02 / 0.01
     assert len(pairs) == 1
     assert any("no threshold estimate" in note for note in notes)
 
@@ -248,9 +249,9 @@ def test_pair_lambda_is_per_step_of_two_for_the_repetition_code() -> None:
     # (one step of 1) gives (eps_2 / eps_3)^2 = Lambda.
     frame = make_frame([2, 3], [0.01], lambda_model(0.1, 3.0), shots=10**10, code="repetition")
     fits, pairs, _ = lambda_fits(only_family(frame), 0.1)
-    assert pairs[0]["distances"] == [2, 3]
-    assert pairs[0]["lambda"] == pytest.approx(3.0, rel=1e-3)
-    assert fits[0]["lambda"] == pytest.approx(3.0, rel=1e-3)
+    assert pairs[0].distances == (2, 3)
+    assert pairs[0].lam == pytest.approx(3.0, rel=1e-3)
+    assert fits[0].lam == pytest.approx(3.0, rel=1e-3)
 
 
 # ---------------------------------------------------------------------------
@@ -270,19 +271,19 @@ def test_scaling_law_recovers_known_parameters() -> None:
     laws, notes = scaling_law_fit(only_family(frame), PTH_TRUE)
     assert notes == [] and len(laws) == 1
     law = laws[0]
-    assert law["A_low"] < A_TRUE < law["A_high"]
-    assert law["p_th_low"] < PTH_TRUE < law["p_th_high"]
-    assert law["A"] == pytest.approx(A_TRUE, rel=0.15)
-    assert law["p_th"] == pytest.approx(PTH_TRUE, rel=0.05)
-    assert law["points"] == 9 and law["dof"] == 7 and law["distances"] == [3, 5, 7]
-    assert_plain_json(laws)
+    assert law.A_low < A_TRUE < law.A_high
+    assert law.p_th_low < PTH_TRUE < law.p_th_high
+    assert law.A == pytest.approx(A_TRUE, rel=0.15)
+    assert law.p_th == pytest.approx(PTH_TRUE, rel=0.05)
+    assert law.points == 9 and law.dof == 7 and law.distances == (3, 5, 7)
+    assert_plain_json([law.to_json() for law in laws])
 
 
 def test_scaling_law_exact_data() -> None:
     frame = make_frame([3, 5, 7], RATES, fowler_model, shots=10**12)
     law = scaling_law_fit(only_family(frame), None)[0][0]
-    assert law["A"] == pytest.approx(A_TRUE, rel=1e-4)
-    assert law["p_th"] == pytest.approx(PTH_TRUE, rel=1e-5)
+    assert law.A == pytest.approx(A_TRUE, rel=1e-4)
+    assert law.p_th == pytest.approx(PTH_TRUE, rel=1e-5)
 
 
 def scaling_coverage(reps: int) -> tuple[float, float]:
@@ -294,8 +295,8 @@ def scaling_coverage(reps: int) -> tuple[float, float]:
     for seed in range(reps):
         frame = base.assign(failures=np.random.default_rng(1000 + seed).binomial(shots, totals))
         law = scaling_law_fit(only_family(frame), PTH_TRUE)[0][0]
-        a_hits += law["A_low"] <= A_TRUE <= law["A_high"]
-        p_hits += law["p_th_low"] <= PTH_TRUE <= law["p_th_high"]
+        a_hits += law.A_low <= A_TRUE <= law.A_high
+        p_hits += law.p_th_low <= PTH_TRUE <= law.p_th_high
     return a_hits / reps, p_hits / reps
 
 
@@ -335,14 +336,14 @@ def test_projection_closed_form_rotated_surface() -> None:
     first = records[0]
     # (d+1)/2 >= log2(1e5) = 16.6 -> d = 33; qubits 2 d^2 - 1 = 2177 (common practice:
     # d^2 data plus d^2 - 1 measure qubits in the rotated surface code).
-    assert first["target"] == 1e-6 and first["distance"] == 33 and first["qubits"] == 2177
-    assert first["distance_low"] == 33 and first["distance_high"] == 33
-    assert first["extrapolation"] is True and first["fitted_distances"] == DISTANCES
+    assert first.target == 1e-6 and first.distance == 33 and first.qubits == 2177
+    assert first.distance_low == 33 and first.distance_high == 33
+    assert first.extrapolation is True and list(first.fitted_distances) == DISTANCES
     for rec in records:
-        d = closed_form_distance(0.1, 2.0, rec["target"], odd=True)
-        assert rec["distance"] == d and rec["qubits"] == 2 * d * d - 1
-        assert rec["distance_low"] <= rec["distance"] <= rec["distance_high"]
-    assert_plain_json(records)
+        d = closed_form_distance(0.1, 2.0, rec.target, odd=True)
+        assert rec.distance == d and rec.qubits == 2 * d * d - 1
+        assert rec.distance_low <= rec.distance <= rec.distance_high
+    assert_plain_json([r.to_json() for r in records])
 
 
 def test_projection_repetition_qubits_and_any_distance() -> None:
@@ -352,12 +353,12 @@ def test_projection_repetition_qubits_and_any_distance() -> None:
     family = only_family(frame)
     fits, _, _ = lambda_fits(family, 0.01)
     records, _ = project(family, fits, [3e-7, 1e-9])
-    assert records[0]["distance"] == 36 == closed_form_distance(0.1, 2.0, 3e-7, odd=False)
+    assert records[0].distance == 36 == closed_form_distance(0.1, 2.0, 3e-7, odd=False)
     for rec in records:
-        assert rec["qubits"] == 2 * rec["distance"] - 1
+        assert rec.qubits == 2 * rec.distance - 1
     # The same target on the rotated surface code needs the next odd distance.
     surface = only_family(make_frame(DISTANCES, [0.001], lambda_model(0.1, 2.0), shots=10**12))
-    assert project(surface, lambda_fits(surface, 0.01)[0], [3e-7])[0][0]["distance"] == 37
+    assert project(surface, lambda_fits(surface, 0.01)[0], [3e-7])[0][0].distance == 37
 
 
 def test_projection_within_fitted_range_is_not_an_extrapolation() -> None:
@@ -365,35 +366,35 @@ def test_projection_within_fitted_range_is_not_an_extrapolation() -> None:
     family = only_family(frame)
     # eps_5 = 0.1 / 8 = 0.0125 -> target 0.013 reached at d = 5.
     rec = project(family, lambda_fits(family, 0.01)[0], [0.013])[0][0]
-    assert rec["distance"] == 5 and rec["extrapolation"] is False
+    assert rec.distance == 5 and rec.extrapolation is False
 
 
 def test_projection_lambda_below_one_is_unreachable() -> None:
     frame = make_frame(DISTANCES, [0.001], lambda_model(0.1, 0.8), shots=10**10)
     family = only_family(frame)
     fits, _, _ = lambda_fits(family, 0.01)  # threshold above p: the points are taken as given
-    assert fits[0]["lambda"] == pytest.approx(0.8, rel=1e-3)
+    assert fits[0].lam == pytest.approx(0.8, rel=1e-3)
     records, notes = project(family, fits, [1e-6])
     rec = records[0]
-    assert rec["distance"] is None and rec["qubits"] is None and rec["reachable"] is False
-    assert rec["distance_low"] is None and rec["distance_high"] is None
+    assert rec.distance is None and rec.qubits is None and rec.reachable is False
+    assert rec.distance_low is None and rec.distance_high is None
     assert any("unreachable" in note for note in notes)
-    assert_plain_json(records)
+    assert_plain_json([r.to_json() for r in records])
 
 
 def test_projection_interval_reaching_below_one_leaves_upper_end_open() -> None:
     family = only_family(make_frame(DISTANCES, [0.001], lambda_model(0.1, 2.0), shots=10**12))
     # A record without log_cov: the range comes from the Lambda interval ends.
-    rec = {**family.identity(), "p": 0.001, "lambda": 1.2, "low": 0.9, "high": 1.5, "C": 0.1,
-           "distances": [3, 5]}
+    rec = LambdaEstimate(family.id, p=0.001, lam=1.2, low=0.9, high=1.5, distances=(3, 5), C=0.1, chi2=0.0, dof=0,
+                         inflation=1.0, ln_lambda_se=0.0, log_cov=None)
     records, notes = project(family, [rec], [1e-6])
     out = records[0]
     # Closed form: Lambda 1.2 -> (d+1)/2 >= ln(1e5)/ln(1.2) = 63.1 -> d = 127;
     # Lambda 1.5 -> 28.4 -> d = 57.
-    assert out["distance"] == 127 == closed_form_distance(0.1, 1.2, 1e-6, odd=True)
-    assert out["distance_low"] == 57 == closed_form_distance(0.1, 1.5, 1e-6, odd=True)
-    assert out["distance_high"] is None and out["qubits_high"] is None
-    assert out["range_from"] == "lambda_interval"
+    assert out.distance == 127 == closed_form_distance(0.1, 1.2, 1e-6, odd=True)
+    assert out.distance_low == 57 == closed_form_distance(0.1, 1.5, 1e-6, odd=True)
+    assert out.distance_high is None and out.qubits_high is None
+    assert out.range_from == "lambda_interval"
     assert any("unbounded" in note for note in notes)
 
 
@@ -402,9 +403,9 @@ def test_projection_range_from_noisy_fit_brackets_the_truth() -> None:
     family = only_family(make_frame(DISTANCES, [0.001], lambda_model(0.1, 2.0), rng=rng))
     rec = project(family, lambda_fits(family, 0.01)[0], [1e-9])[0][0]
     truth = closed_form_distance(0.1, 2.0, 1e-9, odd=True)
-    assert rec["distance_low"] <= truth <= rec["distance_high"]
-    assert rec["distance_low"] < rec["distance_high"]
-    assert rec["qubits_low"] == 2 * rec["distance_low"] ** 2 - 1
+    assert rec.distance_low <= truth <= rec.distance_high
+    assert rec.distance_low < rec.distance_high
+    assert rec.qubits_low == 2 * rec.distance_low ** 2 - 1
 
 
 # ---------------------------------------------------------------------------

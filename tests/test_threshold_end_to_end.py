@@ -15,11 +15,12 @@ from pathlib import Path
 import pytest
 
 from codebench import analyze, run_sweep
+from codebench.analysis import FssThreshold
 
 PUBLISHED = 0.1031  # Wang, Harrington, Preskill (2003), MWPM, independent X/Z flips
 
 
-def _fitted_threshold(tmp_path: Path, shots: int) -> dict[str, object]:
+def _fitted_threshold(tmp_path: Path, shots: int) -> FssThreshold:
     config = {
         "name": "cc_threshold",
         "seed": 2003,
@@ -31,8 +32,8 @@ def _fitted_threshold(tmp_path: Path, shots: int) -> dict[str, object]:
     }
     frame = run_sweep(config, out=tmp_path / "out", workers=2, progress=False)
     result = analyze(frame, bootstrap=100, seed=1)
-    fss = [r for r in result["thresholds"] if r["method"] == "finite_size_scaling"]
-    assert fss, result["notes"]
+    fss = [r for r in result.thresholds if isinstance(r, FssThreshold)]
+    assert fss, result.notes
     return fss[0]
 
 
@@ -41,12 +42,13 @@ def test_code_capacity_threshold_fast(tmp_path: Path) -> None:
     # Fewer shots: within 1% absolute of the published value. The interval is
     # statistical only; at d <= 11 the estimate also drifts a few tenths of a
     # percent below the asymptotic value, so it need not contain it.
-    assert abs(float(fit["threshold"]) - PUBLISHED) < 0.01  # type: ignore[arg-type]
-    assert float(fit["low"]) <= float(fit["threshold"]) <= float(fit["high"])  # type: ignore[arg-type]
-    assert float(fit["high"]) - float(fit["low"]) < 0.01  # type: ignore[arg-type]
+    assert fit.low is not None and fit.high is not None
+    assert abs(fit.threshold - PUBLISHED) < 0.01
+    assert fit.low <= fit.threshold <= fit.high
+    assert fit.high - fit.low < 0.01
 
 
 @pytest.mark.slow
 def test_code_capacity_threshold_published_tolerance(tmp_path: Path) -> None:
     fit = _fitted_threshold(tmp_path, shots=400_000)
-    assert abs(float(fit["threshold"]) - PUBLISHED) <= 0.006  # type: ignore[arg-type]
+    assert abs(fit.threshold - PUBLISHED) <= 0.006

@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from codebench.analysis import thresholds as th
+from codebench.analysis import finite_size_scaling
 from codebench.analysis.families import Family, group_families
 from codebench.analysis.thresholds import (
     best_threshold,
@@ -116,8 +116,10 @@ def rng(seed: int = 0) -> np.random.Generator:
     return np.random.default_rng(seed)
 
 
-def covers(record: dict[str, Any], truth: float, low: str = "low", high: str = "high") -> bool:
-    return record[low] is not None and record[high] is not None and record[low] <= truth <= record[high]
+def covers(record: Any, truth: float, low: str = "low", high: str = "high") -> bool:
+    """Whether the interval (attributes ``low`` and ``high`` of a record) contains ``truth``."""
+    lo, hi = getattr(record, low), getattr(record, high)
+    return lo is not None and hi is not None and bool(lo <= truth <= hi)
 
 
 def assert_json_ready(value: Any) -> None:
@@ -140,16 +142,16 @@ def test_crossings_recover_the_threshold() -> None:
     family = family_of(fss_frame(0))
     records, notes = crossing_thresholds(family, bootstrap=200, rng=rng())
     assert notes == []
-    assert [r["distances"] for r in records] == [[5, 7], [7, 9]]
+    assert [r.distances for r in records] == [(5, 7), (7, 9)]
     for record in records:
-        assert record["method"] == "crossing" and record["quantity"] == "failure_rate"
-        assert record["rounds"] == "d" and record["code"] == "surface"
-        assert record["bootstrap"] == 200 and record["valid_bootstrap"] == 200
-        assert record["low"] <= record["threshold"] <= record["high"]
+        assert record.method == "crossing" and record.quantity == "failure_rate"
+        assert record.family.rounds == "d" and record.family.code == "surface"
+        assert record.bootstrap == 200 and record.valid_bootstrap == 200
+        assert record.low <= record.threshold <= record.high
         # every curve of the model crosses at x = 0, i.e. p = p_th (synthetic model above)
         assert covers(record, P_TH)
-        assert abs(record["threshold"] - P_TH) < 0.05 * P_TH
-        assert_json_ready(record)
+        assert abs(record.threshold - P_TH) < 0.05 * P_TH
+        assert_json_ready(record.to_json())
 
 
 def test_fss_recovers_threshold_and_nu() -> None:
@@ -157,23 +159,23 @@ def test_fss_recovers_threshold_and_nu() -> None:
     records, notes = fss_threshold(family, bootstrap=200, rng=rng())
     assert notes == []
     (record,) = records
-    assert record["method"] == "finite_size_scaling" and record["quantity"] == "failure_rate"
-    assert record["distances"] == [5, 7, 9]
+    assert record.method == "finite_size_scaling" and record.quantity == "failure_rate"
+    assert record.distances == (5, 7, 9)
     assert covers(record, P_TH)  # synthetic model above
     assert covers(record, NU, "nu_low", "nu_high")
-    assert abs(record["threshold"] - P_TH) < 0.02 * P_TH
-    assert abs(record["nu"] - NU) < 0.15 * NU
+    assert abs(record.threshold - P_TH) < 0.02 * P_TH
+    assert abs(record.nu - NU) < 0.15 * NU
     # A, B, C back in the units of x = (p - p_th) d^(1/nu)
-    assert record["A"] == pytest.approx(A_FSS, rel=0.05)
-    assert record["B"] == pytest.approx(B_FSS, rel=0.1)
-    assert record["C"] == pytest.approx(C_FSS, rel=0.5)
-    assert record["points"] == len(FSS_GRID) * len(FSS_DISTANCES)
-    assert record["dof"] == record["points"] - 5
-    low, high = record["window"]
+    assert record.A == pytest.approx(A_FSS, rel=0.05)
+    assert record.B == pytest.approx(B_FSS, rel=0.1)
+    assert record.C == pytest.approx(C_FSS, rel=0.5)
+    assert record.points == len(FSS_GRID) * len(FSS_DISTANCES)
+    assert record.dof == record.points - 5
+    low, high = record.window
     assert low <= FSS_GRID.min() and high >= FSS_GRID.max()
-    assert 0 <= record["gof_p_value"] <= 1
-    assert record["interval"].startswith("wald")
-    assert_json_ready(record)
+    assert 0 <= record.gof_p_value <= 1
+    assert record.interval.startswith("wald")
+    assert_json_ready(record.to_json())
 
 
 def test_fss_deviance_matches_its_formula() -> None:
@@ -181,11 +183,11 @@ def test_fss_deviance_matches_its_formula() -> None:
     # common practice), recomputed here from the record's own parameters
     frame = fss_frame(3)
     (record,), _ = fss_threshold(family_of(frame), bootstrap=0, rng=rng())
-    x = (frame["p"] - record["threshold"]) * frame["distance"] ** (1 / record["nu"])
-    prob = record["A"] + record["B"] * x + record["C"] * x * x
+    x = (frame["p"] - record.threshold) * frame["distance"] ** (1 / record.nu)
+    prob = record.A + record.B * x + record.C * x * x
     k, n = frame["failures"], frame["shots"]
     deviance = 2 * float(np.sum(k * np.log(k / (n * prob)) + (n - k) * np.log((n - k) / (n * (1 - prob)))))
-    assert record["deviance"] == pytest.approx(deviance, rel=1e-6, abs=1e-6)
+    assert record.deviance == pytest.approx(deviance, rel=1e-6, abs=1e-6)
 
 
 def test_threshold_intervals_cover() -> None:
@@ -197,10 +199,10 @@ def test_threshold_intervals_cover() -> None:
         crossings, _ = crossing_thresholds(family, bootstrap=COVERAGE_BOOTSTRAP, rng=rng(rep))
         hits["fss_p"] += covers(fit, P_TH)
         hits["fss_nu"] += covers(fit, NU, "nu_low", "nu_high")
-        by_pair = {tuple(r["distances"]): r for r in crossings}
+        by_pair = {r.distances: r for r in crossings}
         hits["cross_57"] += covers(by_pair[(5, 7)], P_TH)
         hits["cross_79"] += covers(by_pair[(7, 9)], P_TH)
-        small_gof += fit["gof_p_value"] < 0.05
+        small_gof += fit.gof_p_value < 0.05
     # measured over 600 other seeds while writing this (1000 resamples): 0.96 (p_th), 0.95 (nu),
     # 0.96 and 0.96 (crossings)
     assert hits["fss_p"] >= 0.9 * REPS, hits
@@ -212,19 +214,19 @@ def test_threshold_intervals_cover() -> None:
 
 def _force_refit(monkeypatch: pytest.MonkeyPatch) -> None:
     """Make the Hessian look unusable, so the fit falls back to bootstrap refits."""
-    monkeypatch.setattr(th, "_wald", lambda *args: (None, None))
+    monkeypatch.setattr(finite_size_scaling, "_wald", lambda *args: (None, None))
 
 
 def test_fss_refit_intervals_fallback(monkeypatch: pytest.MonkeyPatch) -> None:
     _force_refit(monkeypatch)
     (record,), notes = fss_threshold(family_of(fss_frame(0)), bootstrap=60, rng=rng())
-    assert record["interval"] == "parametric bootstrap refit (60 refits)"
+    assert record.interval == "parametric bootstrap refit (60 refits)"
     assert any("Hessian" in note for note in notes)
     assert covers(record, P_TH) and covers(record, NU, "nu_low", "nu_high")  # synthetic model above
-    assert_json_ready(record)
+    assert_json_ready(record.to_json())
     (none,), _ = fss_threshold(family_of(fss_frame(0)), bootstrap=0, rng=rng())
-    assert none["low"] is None and none["nu_high"] is None
-    assert_json_ready(none)
+    assert none.low is None and none.nu_high is None
+    assert_json_ready(none.to_json())
 
 
 @pytest.mark.slow
@@ -262,9 +264,9 @@ def test_fss_window_narrows_around_the_crossing() -> None:
     rows = [row(d, float(p), SHOTS, int(gen.binomial(SHOTS, min(0.49, max(0.01, fss_rate(float(p), d))))))
             for d in FSS_DISTANCES for p in grid]
     (record,), _ = fss_threshold(family_of(pd.DataFrame(rows)), bootstrap=0, rng=rng())
-    low, high = record["window"]
+    low, high = record.window
     assert low > grid.min() and high < grid.max()
-    assert record["points"] < len(rows)
+    assert record.points < len(rows)
     assert covers(record, P_TH) and covers(record, NU, "nu_low", "nu_high")
 
 
@@ -276,11 +278,11 @@ def test_fss_widens_intervals_when_curves_scatter() -> None:
             for d in FSS_DISTANCES for p in FSS_GRID]
     family = family_of(pd.DataFrame(rows))
     (record,), notes = fss_threshold(family, bootstrap=0, rng=rng())
-    assert record["deviance"] > 3 * record["dof"]
-    assert "scaled by deviance/dof" in record["interval"]
+    assert record.deviance > 3 * record.dof
+    assert "scaled by deviance/dof" in record.interval
     assert any("poor" in note for note in notes)
     (clean,), _ = fss_threshold(family_of(fss_frame(5)), bootstrap=0, rng=rng())
-    assert record["high"] - record["low"] > clean["high"] - clean["low"]
+    assert record.high - record.low > clean.high - clean.low
 
 
 # --------------------------------------------------------------------------- pseudo-thresholds
@@ -289,14 +291,14 @@ def test_fss_widens_intervals_when_curves_scatter() -> None:
 def test_pseudo_threshold_closed_form() -> None:
     records, notes = pseudo_thresholds(family_of(fowler_frame(0)), bootstrap=200, rng=rng())
     assert notes == []
-    assert [r["distance"] for r in records] == list(PSEUDO_DISTANCES)
+    assert [r.distance for r in records] == list(PSEUDO_DISTANCES)
     for record in records:
-        truth = fowler_pseudo(record["distance"])  # closed form derived from Fowler et al. Eqs. 10-11
-        assert record["quantity"] == "per_round_rate"
-        assert record["definition"] == "p at which the per-round logical error rate equals p"
+        truth = fowler_pseudo(record.distance)  # closed form derived from Fowler et al. Eqs. 10-11
+        assert record.quantity == "per_round_rate"
+        assert record.definition == "p at which the per-round logical error rate equals p"
         assert covers(record, truth)
-        assert record["pseudo_threshold"] == pytest.approx(truth, rel=0.1)
-        assert_json_ready(record)
+        assert record.pseudo_threshold == pytest.approx(truth, rel=0.1)
+        assert_json_ready(record.to_json())
 
 
 def test_pseudo_threshold_closed_form_values() -> None:
@@ -311,7 +313,7 @@ def test_pseudo_threshold_intervals_cover() -> None:
     for rep in range(REPS):
         records, _ = pseudo_thresholds(family_of(fowler_frame(rep)), bootstrap=COVERAGE_BOOTSTRAP, rng=rng(rep))
         for record in records:
-            hits[record["distance"]] += covers(record, fowler_pseudo(record["distance"]))
+            hits[record.distance] += covers(record, fowler_pseudo(record.distance))
     # measured over 600 other seeds while writing this (1000 resamples): 0.96 (d=3), 0.94 (d=5), 0.95 (d=7)
     assert all(count >= 0.9 * REPS for count in hits.values()), hits
 
@@ -326,11 +328,11 @@ def test_pseudo_threshold_one_round_is_logical_equals_physical() -> None:
             rate = fowler_per_round(float(p), d)
             rows.append(row(d, float(p), SHOTS, int(gen.binomial(SHOTS, rate)), rounds=1, noise="code_capacity"))
     records, notes = pseudo_thresholds(family_of(pd.DataFrame(rows), rule="1"), bootstrap=200, rng=rng())
-    assert [r["distance"] for r in records] == [3, 5]
+    assert [r.distance for r in records] == [3, 5]
     assert all("took the steepest crossing" in note for note in notes)  # ~20 failures at d=3: noisy
     for record in records:
-        assert record["rounds"] == "1"
-        assert covers(record, fowler_pseudo(record["distance"]))
+        assert record.family.rounds == "1"
+        assert covers(record, fowler_pseudo(record.distance))
 
 
 # --------------------------------------------------------------------------- too little data
@@ -413,9 +415,9 @@ def test_zero_failure_points_do_not_crash() -> None:
     out: list[Any] = []
     for fit in (crossing_thresholds, fss_threshold, pseudo_thresholds):
         records, notes = fit(family, bootstrap=100, rng=rng())
-        out += records + notes
+        out += [r.to_json() for r in records] + notes
         for record in records:
-            assert_json_ready(record)
+            assert_json_ready(record.to_json())
     assert_json_ready(out)
     # nothing but zeros: notes, no numbers
     zeros = pd.DataFrame([row(d, p, 1000, 0) for d in (3, 5) for p in (1e-4, 2e-4, 3e-4)])
@@ -433,7 +435,7 @@ def test_repeated_points_are_pooled() -> None:
     rest = frame.assign(shots=frame["shots"] - half["shots"], failures=frame["failures"] - half["failures"])
     one, _ = crossing_thresholds(family_of(frame), bootstrap=0, rng=rng())
     two, _ = crossing_thresholds(family_of(pd.concat([half, rest])), bootstrap=0, rng=rng())
-    assert [r["threshold"] for r in one] == pytest.approx([r["threshold"] for r in two], rel=1e-12)
+    assert [r.threshold for r in one] == pytest.approx([r.threshold for r in two], rel=1e-12)
 
 
 def test_weak_bootstrap_is_noted() -> None:
@@ -443,11 +445,11 @@ def test_weak_bootstrap_is_noted() -> None:
     rows += [row(7, p, 1000, k) for p, k in ((0.009, 80), (0.01, 80), (0.011, 101))]
     family = family_of(pd.DataFrame(rows))
     (record,), notes = crossing_thresholds(family, bootstrap=200, rng=rng())
-    assert 0.01 < record["threshold"] < 0.011
-    assert record["valid_bootstrap"] < 160
-    assert notes == [f"{family.describe()}: curves of d=5 and d=7: only {record['valid_bootstrap']} of 200 "
+    assert 0.01 < record.threshold < 0.011
+    assert record.valid_bootstrap < 160
+    assert notes == [f"{family.describe()}: curves of d=5 and d=7: only {record.valid_bootstrap} of 200 "
                      "bootstrap resamples cross; the interval is unreliable."]
-    assert_json_ready(record)
+    assert_json_ready(record.to_json())
 
 
 # --------------------------------------------------------------------------- choice
@@ -459,9 +461,9 @@ def test_best_threshold_prefers_fss_then_largest_pair() -> None:
     fits, _ = fss_threshold(family, bootstrap=0, rng=rng())
     assert best_threshold(crossings + fits) is fits[0]
     best = best_threshold(crossings)
-    assert best is not None and best["distances"] == [7, 9]
+    assert best is not None and best.distances == (7, 9)
     assert best_threshold([]) is None
-    assert math.isfinite(float(best["threshold"]))
+    assert math.isfinite(float(best.threshold))
 
 
 def test_notes_start_with_the_family() -> None:

@@ -1,20 +1,33 @@
 """Fits a design review asks for: thresholds, pseudo-thresholds, Lambda, scaling law, projections.
 
 :func:`analyze` runs every fit on every family of a results table
-(:mod:`codebench.analysis.families`) and returns plain JSON-ready records.
+(:mod:`codebench.analysis.families`) and returns an :class:`AnalysisResult`:
+typed records per family (:mod:`codebench.analysis.records`), whose
+``to_json()`` is the JSON document of ``codebench analyze --format json``.
 Where data are too few for a fit, it adds a note saying what is missing
 instead of a number.
 """
 
 from __future__ import annotations
 
-from typing import Any, Sequence
+from typing import Sequence
 
 import numpy as np
 import pandas as pd
 
-from codebench.analysis.families import Family, group_families
+from codebench.analysis.families import Family, FamilyId, group_families
 from codebench.analysis.projections import project
+from codebench.analysis.records import (
+    CrossingThreshold,
+    FssThreshold,
+    LambdaEstimate,
+    LambdaPair,
+    Projection,
+    PseudoThreshold,
+    ScalingLaw,
+    ThresholdEstimate,
+)
+from codebench.analysis.result import AnalysisResult, AnalysisSettings, FamilyAnalysis
 from codebench.analysis.suppression import lambda_fits, scaling_law_fit
 from codebench.analysis.thresholds import (
     best_threshold,
@@ -22,6 +35,7 @@ from codebench.analysis.thresholds import (
     fss_threshold,
     pseudo_thresholds,
 )
+from codebench.noise import NOISE_MODELS
 
 DEFAULT_TARGETS = (1e-6, 1e-9, 1e-12)
 
@@ -29,10 +43,43 @@ DEFAULT_TARGETS = (1e-6, 1e-9, 1e-12)
 def threshold_applies(family: Family) -> bool:
     """Whether whole-experiment failure curves of this family can cross at a threshold.
 
-    Rounds must grow with d (``"d"``, ``"2d"``, ...), or the noise must act once
-    (code capacity), or there is a single round.
+    Rounds must grow with d (``"d"``, ``"2d"``, ...), or the noise model must
+    act once (:attr:`codebench.noise.NoiseModel.acts_once`, as code capacity
+    does), or there is a single round.
     """
-    return family.rounds_rule.endswith("d") or family.noise == "code_capacity" or family.rounds_rule == "1"
+    model = NOISE_MODELS.get(family.noise)
+    acts_once = model is not None and model.acts_once
+    return family.rounds_rule.endswith("d") or acts_once or family.rounds_rule == "1"
+
+
+def analyze_family(family: Family, *, targets: Sequence[float], bootstrap: int,
+                   rng: np.random.Generator) -> FamilyAnalysis:
+    """Every fit of one family, drawing the bootstrap resamples from ``rng`` (in a fixed order)."""
+    notes: list[str] = []
+    thresholds: list[ThresholdEstimate] = []
+    applies = threshold_applies(family)
+    if applies:
+        crossings, crossing_notes = crossing_thresholds(family, bootstrap=bootstrap, rng=rng)
+        thresholds += crossings
+        notes += crossing_notes
+        fss, fss_notes = fss_threshold(family, bootstrap=bootstrap, rng=rng)
+        thresholds += fss
+        notes += fss_notes
+    else:
+        notes.append(f"{family.describe()}: no threshold estimate (fixed number of rounds > 1; "
+                     "thresholds need rounds growing with d).")
+    pseudo, pseudo_notes = pseudo_thresholds(family, bootstrap=bootstrap, rng=rng)
+    notes += pseudo_notes
+    chosen = best_threshold(thresholds)
+    threshold = None if chosen is None else float(chosen.threshold)
+    lambdas, pairs, lambda_notes = lambda_fits(family, threshold)
+    notes += lambda_notes
+    laws, law_notes = scaling_law_fit(family, threshold)
+    notes += law_notes
+    projections, projection_notes = project(family, lambdas, targets)
+    notes += projection_notes
+    return FamilyAnalysis(family.id, applies, tuple(thresholds), tuple(pseudo), tuple(lambdas), tuple(pairs),
+                          tuple(laws), tuple(projections), tuple(notes))
 
 
 def analyze(
@@ -41,49 +88,27 @@ def analyze(
     targets: Sequence[float] = DEFAULT_TARGETS,
     bootstrap: int = 1000,
     seed: int = 0,
-) -> dict[str, Any]:
+) -> AnalysisResult:
     """Run every fit on every family of ``frame`` (a results table).
 
-    Returns a dict with the lists ``thresholds``, ``pseudo_thresholds``,
-    ``lambdas``, ``lambda_pairs``, ``scaling_laws``, ``projections`` and
-    ``notes`` (why a fit is missing), plus ``settings``.
+    Returns an :class:`AnalysisResult`: per family (``families``) the
+    threshold estimates, pseudo-thresholds, Lambda fits and pairs, scaling
+    law, projections and the notes on why a fit is missing; the same
+    sections over all families as properties; the ``settings``; and
+    ``to_json()``.
     """
     rng = np.random.default_rng(seed)
-    out: dict[str, Any] = {key: [] for key in (
-        "thresholds", "pseudo_thresholds", "lambdas", "lambda_pairs", "scaling_laws", "projections", "notes")}
-    out["settings"] = {"targets": list(targets), "bootstrap": bootstrap, "seed": seed, "confidence": 0.95}
+    settings = AnalysisSettings(tuple(targets), bootstrap, seed)
     families = group_families(frame)
-    if not families:
-        out["notes"].append("no family of points with at least two distances: nothing to fit.")
-    for family in families:
-        threshold_records: list[dict[str, Any]] = []
-        if threshold_applies(family):
-            for fit in (crossing_thresholds, fss_threshold):
-                records, notes = fit(family, bootstrap=bootstrap, rng=rng)
-                threshold_records += records
-                out["notes"] += notes
-        else:
-            out["notes"].append(
-                f"{family.describe()}: no threshold estimate (fixed number of rounds > 1; "
-                "thresholds need rounds growing with d)."
-            )
-        out["thresholds"] += threshold_records
-        records, notes = pseudo_thresholds(family, bootstrap=bootstrap, rng=rng)
-        out["pseudo_thresholds"] += records
-        out["notes"] += notes
-        chosen = best_threshold(threshold_records)
-        threshold = None if chosen is None else float(chosen["threshold"])
-        fits, pairs, notes = lambda_fits(family, threshold)
-        out["lambdas"] += fits
-        out["lambda_pairs"] += pairs
-        out["notes"] += notes
-        laws, notes = scaling_law_fit(family, threshold)
-        out["scaling_laws"] += laws
-        out["notes"] += notes
-        projections, notes = project(family, fits, targets)
-        out["projections"] += projections
-        out["notes"] += notes
-    return out
+    general = () if families else ("no family of points with at least two distances: nothing to fit.",)
+    return AnalysisResult(
+        tuple(analyze_family(family, targets=targets, bootstrap=bootstrap, rng=rng) for family in families),
+        settings, general)
 
 
-__all__ = ["DEFAULT_TARGETS", "Family", "analyze", "group_families", "threshold_applies"]
+__all__ = [
+    "DEFAULT_TARGETS", "AnalysisResult", "AnalysisSettings", "CrossingThreshold", "Family", "FamilyAnalysis",
+    "FamilyId", "FssThreshold", "LambdaEstimate", "LambdaPair", "Projection", "PseudoThreshold", "ScalingLaw",
+    "ThresholdEstimate", "analyze", "analyze_family", "best_threshold", "crossing_thresholds", "fss_threshold",
+    "group_families", "lambda_fits", "project", "pseudo_thresholds", "scaling_law_fit", "threshold_applies",
+]

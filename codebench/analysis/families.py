@@ -19,6 +19,30 @@ IDENTITY = ("code", "basis", "noise", "noise_options", "decoder")
 
 
 @dataclass(frozen=True)
+class FamilyId:
+    """Who a result record belongs to: the family's code, basis, noise model, decoder and rounds rule.
+
+    ``noise_options`` (the options' canonical JSON) tells apart families that differ only there; it is not
+    part of a record's JSON, which starts with the five other keys (:meth:`to_json`).
+    """
+
+    code: str
+    basis: str
+    noise: str
+    decoder: str
+    rounds: str
+    noise_options: str = "{}"
+
+    def to_json(self) -> dict[str, Any]:
+        """The keys every JSON record of the family starts with (as :meth:`Family.identity`)."""
+        return {"code": self.code, "basis": self.basis, "noise": self.noise, "decoder": self.decoder,
+                "rounds": self.rounds}
+
+    def describe(self) -> str:
+        return f"{self.code} {self.basis} {self.noise} {self.decoder} rounds={self.rounds}"
+
+
+@dataclass(frozen=True)
 class Family:
     """Points of one curve family, sorted by distance then p."""
 
@@ -39,13 +63,17 @@ class Family:
         """The sampled values of ``p`` (the noise model's base rate or scale factor)."""
         return sorted(float(p) for p in self.frame["p"].unique())
 
+    @property
+    def id(self) -> FamilyId:
+        """The family's identity, as its result records carry it."""
+        return FamilyId(self.code, self.basis, self.noise, self.decoder, self.rounds_rule, self.noise_options)
+
     def identity(self) -> dict[str, Any]:
         """The keys every result record of this family starts with."""
-        return {"code": self.code, "basis": self.basis, "noise": self.noise, "decoder": self.decoder,
-                "rounds": self.rounds_rule}
+        return self.id.to_json()
 
     def describe(self) -> str:
-        return f"{self.code} {self.basis} {self.noise} {self.decoder} rounds={self.rounds_rule}"
+        return self.id.describe()
 
     def at_distance(self, distance: int) -> pd.DataFrame:
         return self.frame[self.frame["distance"] == distance].sort_values("p")

@@ -29,12 +29,13 @@ is an extrapolation and is flagged as such, with the fitted distances.
 from __future__ import annotations
 
 from functools import lru_cache
-from typing import Any, Sequence
+from typing import Sequence
 
 import numpy as np
 import numpy.typing as npt
 
 from codebench.analysis.families import Family
+from codebench.analysis.records import LambdaEstimate, Projection
 from codebench.codes import get_code_family
 from codebench.stats import Z95
 
@@ -116,36 +117,32 @@ def distances_for_target(
     return central, low, high
 
 
-def project(family: Family, lambda_records: list[dict[str, Any]],
-            targets: Sequence[float]) -> tuple[list[dict[str, Any]], list[str]]:
+def project(family: Family, lambda_records: Sequence[LambdaEstimate],
+            targets: Sequence[float]) -> tuple[list[Projection], list[str]]:
     """Smallest distance and qubit count reaching each target, from each Lambda fit.
 
     Parameters
     ----------
     family : Family
         The family the Lambda records were fitted on.
-    lambda_records : list of dict
-        Records from :func:`codebench.analysis.suppression.lambda_fits`; each
-        needs ``p``, ``lambda``, ``low``, ``high``, ``C`` and ``distances``
-        (``log_cov`` optional, see the module docstring).
+    lambda_records : sequence of LambdaEstimate
+        Records from :func:`codebench.analysis.suppression.lambda_fits`
+        (``log_cov`` may be ``None``, see the module docstring).
     targets : sequence of float
         Target per-round logical error rates, each in (0, 1/2).
 
     Returns
     -------
-    records : list of dict
-        One per (Lambda record, target): ``{**family.identity(), "p",
-        "target", "lambda", "distance", "qubits", "distance_low",
-        "distance_high", "qubits_low", "qubits_high", "reachable",
-        "extrapolation", "fitted_distances", "range_from"}``; unreachable
-        ends are ``None``. ``extrapolation`` is true when the distance lies
-        outside the fitted distances.
+    records : list of Projection
+        One per (Lambda record, target); unreachable ends are ``None``.
+        ``extrapolation`` is true when the distance lies outside the fitted
+        distances.
     notes : list of str
         Unreachable targets, open-ended ranges, bad targets.
     """
     prefix = f"{family.describe()}: "
     notes: list[str] = []
-    out: list[dict[str, Any]] = []
+    out: list[Projection] = []
     if not lambda_records:
         return out, notes
     good_targets = [float(t) for t in targets if 0.0 < float(t) < 0.5]
@@ -157,11 +154,10 @@ def project(family: Family, lambda_records: list[dict[str, Any]],
     except KeyError:
         return out, notes + [prefix + f"no projection: unknown code family {family.code!r}."]
     for rec in lambda_records:
-        p = float(rec["p"])
-        lam, lam_low, lam_high, c = (float(rec[key]) for key in ("lambda", "low", "high", "C"))
-        fitted = sorted(int(d) for d in rec["distances"])
-        cov = rec.get("log_cov")
-        log_cov = None if cov is None else np.asarray(cov, dtype=np.float64)
+        p = float(rec.p)
+        lam, lam_low, lam_high, c = float(rec.lam), float(rec.low), float(rec.high), float(rec.C)
+        fitted = sorted(int(d) for d in rec.distances)
+        log_cov = None if rec.log_cov is None else np.asarray(rec.log_cov, dtype=np.float64)
         if lam <= 1.0:
             notes.append(prefix + f"at p={p:.6g}, Lambda = {lam:.4g} <= 1: the targets are unreachable by "
                          "growing the distance (no projection).")
@@ -174,18 +170,18 @@ def project(family: Family, lambda_records: list[dict[str, Any]],
                 allowed, float(np.log(c)), float(np.log(lam)), float(np.log(target)), log_cov, lam_low, lam_high)
             if lam > 1.0 and central is None:
                 unreached.append(f"{target:.3g}")
-            out.append({
-                **family.identity(), "p": p, "target": target, "lambda": lam,
-                "distance": central, "qubits": None if central is None else _qubits(family.code, central),
-                "distance_low": low, "distance_high": high,
-                "qubits_low": None if low is None else _qubits(family.code, low),
-                "qubits_high": None if high is None else _qubits(family.code, high),
-                "reachable": central is not None,
-                "extrapolation": None if central is None else not fitted[0] <= central <= fitted[-1],
-                "fitted_distances": fitted,
-                "range_from": "lambda_interval" if log_cov is None else "prediction_band",
-                "max_distance_searched": MAX_DISTANCE,
-            })
+            out.append(Projection(
+                family.id, p, target, lam,
+                distance=central, qubits=None if central is None else _qubits(family.code, central),
+                distance_low=low, distance_high=high,
+                qubits_low=None if low is None else _qubits(family.code, low),
+                qubits_high=None if high is None else _qubits(family.code, high),
+                reachable=central is not None,
+                extrapolation=None if central is None else not fitted[0] <= central <= fitted[-1],
+                fitted_distances=tuple(fitted),
+                range_from="lambda_interval" if log_cov is None else "prediction_band",
+                max_distance_searched=MAX_DISTANCE,
+            ))
         if unreached:
             notes.append(prefix + f"at p={p:.6g}, target(s) {', '.join(unreached)} not reached by d = "
                          f"{MAX_DISTANCE} (distance None).")

@@ -2,27 +2,43 @@
 
 from __future__ import annotations
 
-from typing import Any, Sequence
+from typing import Callable, Protocol, Sequence, TypeVar
+
+from codebench.analysis.families import FamilyId
+from codebench.analysis.records import (
+    FssThreshold,
+    LambdaEstimate,
+    LambdaPair,
+    Projection,
+    PseudoThreshold,
+    ScalingLaw,
+    ThresholdEstimate,
+)
+from codebench.analysis.result import AnalysisResult
+
+Cell = str | int | float | bool | tuple[object, ...] | None
+R = TypeVar("R")
+Column = tuple[str, Callable[[R], Cell]]
 
 
-def _fmt(value: Any) -> str:
+def _fmt(value: object) -> str:
     if value is None:
         return "-"
     if isinstance(value, bool):
         return "yes" if value else "no"
     if isinstance(value, float):
         return f"{value:.4g}"
-    if isinstance(value, list):
+    if isinstance(value, (list, tuple)):
         return ",".join(_fmt(v) for v in value)
     return str(value)
 
 
-def _table(title: str, records: Sequence[dict[str, Any]], columns: Sequence[tuple[str, str]]) -> str:
+def _table(title: str, records: Sequence[R], columns: Sequence[Column[R]]) -> str:
     lines = [title, "=" * len(title)]
     if not records:
         return "\n".join(lines + ["(none)"])
     rows = [[header for header, _ in columns]]
-    rows += [[_fmt(r.get(key)) for _, key in columns] for r in records]
+    rows += [[_fmt(cell(r)) for _, cell in columns] for r in records]
     widths = [max(len(row[i]) for row in rows) for i in range(len(columns))]
     for i, row in enumerate(rows):
         lines.append("  ".join(cell.ljust(w) for cell, w in zip(row, widths)).rstrip())
@@ -31,37 +47,68 @@ def _table(title: str, records: Sequence[dict[str, Any]], columns: Sequence[tupl
     return "\n".join(lines)
 
 
-_FAMILY = [("code", "code"), ("basis", "basis"), ("noise", "noise"), ("decoder", "decoder"), ("rounds", "rounds")]
+class _Record(Protocol):
+    @property
+    def family(self) -> FamilyId: ...
 
 
-def analysis_table(result: dict[str, Any]) -> str:
-    """All sections of an :func:`~codebench.analysis.analyze` result, one table each."""
-    projections = [{**r, "distance_range": [r.get("distance_low"), r.get("distance_high")]}
-                   for r in result["projections"]]
-    sections = [
-        _table("Thresholds (quantity: failure probability of the whole memory experiment)", result["thresholds"],
-               _FAMILY + [("method", "method"), ("distances", "distances"), ("threshold", "threshold"),
-                          ("95% low", "low"), ("95% high", "high"), ("nu", "nu"), ("window", "window"),
-                          ("GOF p", "gof_p_value")]),
-        _table("Pseudo-thresholds (p at which the per-round logical error equals p)", result["pseudo_thresholds"],
-               _FAMILY + [("d", "distance"), ("pseudo-threshold", "pseudo_threshold"), ("95% low", "low"),
-                          ("95% high", "high")]),
-        _table("Lambda (eps_d = C / Lambda^((d+1)/2), per-round rates)", result["lambdas"],
-               _FAMILY + [("p", "p"), ("distances", "distances"), ("Lambda", "lambda"), ("95% low", "low"),
-                          ("95% high", "high")]),
-        _table("Lambda between consecutive distances", result["lambda_pairs"],
-               _FAMILY + [("p", "p"), ("distances", "distances"), ("Lambda", "lambda"), ("95% low", "low"),
-                          ("95% high", "high")]),
-        _table("Scaling law (eps = A (p / p_th)^((d+1)/2))", result["scaling_laws"],
-               _FAMILY + [("A", "A"), ("A low", "A_low"), ("A high", "A_high"), ("p_th", "p_th"),
-                          ("p_th low", "p_th_low"), ("p_th high", "p_th_high")]),
-        _table("Projections (from the Lambda fit; extrapolated beyond the fitted distances where marked)",
-               projections,
-               _FAMILY + [("p", "p"), ("target/round", "target"), ("d", "distance"), ("qubits", "qubits"),
-                          ("d range", "distance_range"), ("extrapolated", "extrapolation"),
-                          ("fitted d", "fitted_distances")]),
+F = TypeVar("F", bound=_Record)
+
+
+def _family(extra: Sequence[Column[F]]) -> list[Column[F]]:
+    """The family's columns, then ``extra``."""
+    columns: list[Column[F]] = [
+        ("code", lambda r: r.family.code), ("basis", lambda r: r.family.basis), ("noise", lambda r: r.family.noise),
+        ("decoder", lambda r: r.family.decoder), ("rounds", lambda r: r.family.rounds),
     ]
-    notes = result.get("notes", [])
-    if notes:
-        sections.append("Notes\n=====\n" + "\n".join(f"- {n}" for n in notes))
+    return columns + list(extra)
+
+
+def _nu(r: ThresholdEstimate) -> float | None:
+    return r.nu if isinstance(r, FssThreshold) else None
+
+
+def _window(r: ThresholdEstimate) -> tuple[float, float] | None:
+    return r.window if isinstance(r, FssThreshold) else None
+
+
+def _gof(r: ThresholdEstimate) -> float | None:
+    return r.gof_p_value if isinstance(r, FssThreshold) else None
+
+
+def analysis_table(result: AnalysisResult) -> str:
+    """All sections of an :func:`~codebench.analysis.analyze` result, one table each."""
+    thresholds: list[Column[ThresholdEstimate]] = _family([
+        ("method", lambda r: r.method), ("distances", lambda r: r.distances), ("threshold", lambda r: r.threshold),
+        ("95% low", lambda r: r.low), ("95% high", lambda r: r.high), ("nu", _nu), ("window", _window),
+        ("GOF p", _gof)])
+    pseudo: list[Column[PseudoThreshold]] = _family([
+        ("d", lambda r: r.distance), ("pseudo-threshold", lambda r: r.pseudo_threshold), ("95% low", lambda r: r.low),
+        ("95% high", lambda r: r.high)])
+    lambdas: list[Column[LambdaEstimate]] = _family([
+        ("p", lambda r: r.p), ("distances", lambda r: r.distances), ("Lambda", lambda r: r.lam),
+        ("95% low", lambda r: r.low), ("95% high", lambda r: r.high)])
+    pairs: list[Column[LambdaPair]] = _family([
+        ("p", lambda r: r.p), ("distances", lambda r: r.distances), ("Lambda", lambda r: r.lam),
+        ("95% low", lambda r: r.low), ("95% high", lambda r: r.high)])
+    laws: list[Column[ScalingLaw]] = _family([
+        ("A", lambda r: r.A), ("A low", lambda r: r.A_low), ("A high", lambda r: r.A_high), ("p_th", lambda r: r.p_th),
+        ("p_th low", lambda r: r.p_th_low), ("p_th high", lambda r: r.p_th_high)])
+    projections: list[Column[Projection]] = _family([
+        ("p", lambda r: r.p), ("target/round", lambda r: r.target), ("d", lambda r: r.distance),
+        ("qubits", lambda r: r.qubits), ("d range", lambda r: (r.distance_low, r.distance_high)),
+        ("extrapolated", lambda r: r.extrapolation), ("fitted d", lambda r: r.fitted_distances)])
+    sections = [
+        _table("Thresholds (quantity: failure probability of the whole memory experiment)", result.thresholds,
+               thresholds),
+        _table("Pseudo-thresholds (p at which the per-round logical error equals p)", result.pseudo_thresholds,
+               pseudo),
+        _table("Lambda (eps_d = C / Lambda^((d+1)/2), per-round rates)", result.lambdas, lambdas),
+        _table("Lambda between consecutive distances", result.lambda_pairs, pairs),
+        _table("Scaling law (eps = A (p / p_th)^((d+1)/2))", result.scaling_laws, laws),
+        _table("Projections (from the Lambda fit; extrapolated beyond the fitted distances where marked)",
+               result.projections, projections),
+    ]
+    if result.notes:
+        sections.append("Notes\n=====\n" + "\n".join(f"- {n}" for n in result.notes))
     return "\n\n".join(sections)

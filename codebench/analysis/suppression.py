@@ -51,6 +51,7 @@ import numpy.typing as npt
 import pandas as pd
 
 from codebench.analysis.families import Family
+from codebench.analysis.records import LambdaEstimate, LambdaPair, ScalingLaw
 from codebench.stats import Z95
 
 FloatArray = npt.NDArray[np.float64]
@@ -289,11 +290,11 @@ def lambda_pair(d1: int, d2: int, log_eps1: float, log_eps2: float, var1: float,
     return _log_interval(scale * (log_eps1 - log_eps2), scale**2 * (var1 + var2))
 
 
-def _all_finite(record: dict[str, Any], keys: tuple[str, ...]) -> bool:
-    return all(np.isfinite(record[key]) for key in keys)
+def _all_finite(*values: float) -> bool:
+    return all(np.isfinite(value) for value in values)
 
 
-def lambda_fits(family: Family, threshold: float | None) -> tuple[list[dict[str, Any]], list[dict[str, Any]], list[str]]:
+def lambda_fits(family: Family, threshold: float | None) -> tuple[list[LambdaEstimate], list[LambdaPair], list[str]]:
     """Lambda at each p with at least two usable distances below threshold.
 
     Parameters
@@ -306,16 +307,11 @@ def lambda_fits(family: Family, threshold: float | None) -> tuple[list[dict[str,
 
     Returns
     -------
-    fits : list of dict
-        One record per p: ``{**family.identity(), "p", "lambda", "low",
-        "high", "distances", "C", "method": "weighted_log_fit", "quantity":
-        "per_round_rate", "chi2", "dof", "inflation", "ln_lambda_se",
-        "log_cov"}`` where ``log_cov`` is the 2 x 2 covariance of
+    fits : list of LambdaEstimate
+        One record per p, whose ``log_cov`` is the 2 x 2 covariance of
         (ln C, ln Lambda) used by :func:`codebench.analysis.projections.project`.
-    pairs : list of dict
-        One record per consecutive pair of those distances at each p:
-        ``{**family.identity(), "p", "distances": [d1, d2], "lambda", "low",
-        "high", "method": "pair_ratio", "quantity": "per_round_rate"}`` with
+    pairs : list of LambdaPair
+        One record per consecutive pair of those distances at each p, with
         lambda = (eps_d1 / eps_d2)^(2 / (d2 - d1)).
     notes : list of str
         Why a fit is missing.
@@ -326,8 +322,8 @@ def lambda_fits(family: Family, threshold: float | None) -> tuple[list[dict[str,
         notes.append(prefix + "no threshold estimate available; at each p, using the distances "
                      "(from the smallest) over which eps decreases with d as below threshold.")
     selected = points.take(below_threshold(points, threshold))
-    fits: list[dict[str, Any]] = []
-    pairs: list[dict[str, Any]] = []
+    fits: list[LambdaEstimate] = []
+    pairs: list[LambdaPair] = []
     missing: list[str] = []
     for p in np.unique(points.p):
         at_p = selected.take(selected.p == p)
@@ -338,27 +334,18 @@ def lambda_fits(family: Family, threshold: float | None) -> tuple[list[dict[str,
             continue
         y = np.log(at_p.eps)
         fit = fit_lambda(at_p.distance, y, at_p.var_log)
-        record: dict[str, Any] = {
-            **family.identity(), "p": float(p), "lambda": fit.lam, "low": fit.low, "high": fit.high,
-            "distances": fit.distances, "C": fit.C,
-            "method": "weighted_log_fit", "quantity": "per_round_rate",
-            "chi2": fit.chi2, "dof": fit.dof, "inflation": fit.inflation,
-            "ln_lambda_se": fit.ln_lambda_se, "log_cov": fit.log_cov,
-        }
-        if _all_finite(record, ("lambda", "low", "high", "C", "chi2")):
-            fits.append(record)
+        if _all_finite(fit.lam, fit.low, fit.high, fit.C, fit.chi2):
+            fits.append(LambdaEstimate(
+                family.id, float(p), fit.lam, fit.low, fit.high, tuple(fit.distances), fit.C, fit.chi2, fit.dof,
+                fit.inflation, fit.ln_lambda_se, tuple(tuple(row) for row in fit.log_cov)))
         else:
             notes.append(prefix + f"Lambda fit at p={float(p):.6g} is not finite; left out.")
         for i in range(len(at_p) - 1):
             d1, d2 = int(at_p.distance[i]), int(at_p.distance[i + 1])
             lam, low, high = lambda_pair(d1, d2, float(y[i]), float(y[i + 1]), float(at_p.var_log[i]),
                                          float(at_p.var_log[i + 1]))
-            pair: dict[str, Any] = {
-                **family.identity(), "p": float(p), "distances": [d1, d2], "lambda": lam,
-                "low": low, "high": high, "method": "pair_ratio", "quantity": "per_round_rate",
-            }
-            if _all_finite(pair, ("lambda", "low", "high")):
-                pairs.append(pair)
+            if _all_finite(lam, low, high):
+                pairs.append(LambdaPair(family.id, float(p), (d1, d2), lam, low, high))
     if missing:
         where = "below threshold" if threshold is None else f"below the threshold {threshold:.6g}"
         notes.append(prefix + "no Lambda fit at p = " + ", ".join(missing)
@@ -368,7 +355,7 @@ def lambda_fits(family: Family, threshold: float | None) -> tuple[list[dict[str,
     return fits, pairs, notes
 
 
-def scaling_law_fit(family: Family, threshold: float | None) -> tuple[list[dict[str, Any]], list[str]]:
+def scaling_law_fit(family: Family, threshold: float | None) -> tuple[list[ScalingLaw], list[str]]:
     """Fit eps = A (p / p_th)^((d + 1) / 2) over the below-threshold points.
 
     The model is linear in (ln A, ln p_th): ln eps - ((d + 1) / 2) ln p =
@@ -384,11 +371,8 @@ def scaling_law_fit(family: Family, threshold: float | None) -> tuple[list[dict[
 
     Returns
     -------
-    records : list of dict
-        At most one: ``{**family.identity(), "A", "A_low", "A_high", "p_th",
-        "p_th_low", "p_th_high", "points", "distances", "rates", "chi2",
-        "dof", "inflation", "method": "weighted_log_fit", "quantity":
-        "per_round_rate"}``.
+    records : list of ScalingLaw
+        At most one.
     notes : list of str
         Why the fit is missing. Needs >= 3 points spanning >= 2 distances and
         >= 2 values of p.
@@ -408,16 +392,11 @@ def scaling_law_fit(family: Family, threshold: float | None) -> tuple[list[dict[
     fit = weighted_fit(np.column_stack([np.ones_like(half), -half]), y, selected.var_log)
     a, a_low, a_high = _log_interval(float(fit.beta[0]), float(fit.cov[0, 0]))
     p_th, p_low, p_high = _log_interval(float(fit.beta[1]), float(fit.cov[1, 1]))
-    record: dict[str, Any] = {
-        **family.identity(), "A": a, "A_low": a_low, "A_high": a_high,
-        "p_th": p_th, "p_th_low": p_low, "p_th_high": p_high,
-        "points": len(selected), "distances": [int(d) for d in distances],
-        "rates": [float(p) for p in rates], "chi2": fit.chi2, "dof": fit.dof,
-        "inflation": float(fit.inflation), "method": "weighted_log_fit", "quantity": "per_round_rate",
-    }
-    if not _all_finite(record, ("A", "A_low", "A_high", "p_th", "p_th_low", "p_th_high", "chi2")):
+    if not _all_finite(a, a_low, a_high, p_th, p_low, p_high, fit.chi2):
         return [], [prefix + "scaling-law fit is not finite; left out."]
-    return [record], []
+    return [ScalingLaw(family.id, a, a_low, a_high, p_th, p_low, p_high, len(selected),
+                       tuple(int(d) for d in distances), tuple(float(p) for p in rates), fit.chi2, fit.dof,
+                       float(fit.inflation))], []
 
 
 __all__ = [

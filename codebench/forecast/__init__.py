@@ -11,6 +11,8 @@ One job per module:
 - :mod:`~codebench.forecast.extrapolation`: the raised-noise power law (``--method extrapolated``);
 - :mod:`~codebench.forecast.estimators`: per-distance estimates, Lambda, target distances;
 - :mod:`~codebench.forecast.breakeven`: against an idle physical qubit;
+- :mod:`~codebench.forecast.result` and :mod:`~codebench.forecast.details`: the typed result
+  (:class:`ForecastResult`) and its JSON;
 - :mod:`~codebench.forecast.render`: table, JSON, CSV and figure;
 - :mod:`~codebench.forecast.run`: the orchestration (:func:`forecast`).
 
@@ -29,10 +31,20 @@ from codebench.forecast.request import (
     METHODS,
     ForecastRequest,
 )
+from codebench.forecast.result import (
+    BreakEven,
+    BudgetSummary,
+    DistanceForecast,
+    ForecastResult,
+    LambdaStep,
+    LambdaSummary,
+    TargetForecast,
+)
 from codebench.forecast.run import CAUTIONS, forecast, run_forecast
 from codebench.forecast.whatif import IMPROVABLE, improve_device, parse_improve
 
 __all__ = [
-    "CAUTIONS", "DEFAULT_DISTANCES", "DEFAULT_SEED", "DEFAULT_TARGETS", "IMPROVABLE", "METHODS", "ForecastRequest",
-    "forecast", "idle_error", "improve_device", "parse_improve", "run_forecast",
+    "CAUTIONS", "DEFAULT_DISTANCES", "DEFAULT_SEED", "DEFAULT_TARGETS", "IMPROVABLE", "METHODS", "BreakEven",
+    "BudgetSummary", "DistanceForecast", "ForecastRequest", "ForecastResult", "LambdaStep", "LambdaSummary",
+    "TargetForecast", "forecast", "idle_error", "improve_device", "parse_improve", "run_forecast",
 ]

@@ -2,14 +2,28 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Protocol, Sequence
 
 import numpy as np
 
+from codebench.forecast.result import BreakEven, BreakEvenRow
 from codebench.noise.calibration import Device
 from codebench.noise.device import twirled_idle
 
-__all__ = ["break_even", "idle_error"]
+
+class RatedDistance(Protocol):
+    """What break-even reads of a distance (a :class:`~codebench.forecast.result.DistanceForecast` has it)."""
+
+    @property
+    def distance(self) -> int: ...
+
+    @property
+    def per_round_rate(self) -> float | None: ...
+
+    @property
+    def high(self) -> float | None: ...
+
+__all__ = ["RatedDistance", "break_even", "idle_error"]
 
 
 def idle_error(t_us: float, t1_us: float, t2_us: float) -> float:
@@ -21,7 +35,8 @@ def idle_error(t_us: float, t1_us: float, t2_us: float) -> float:
     return float(sum(twirled_idle(t_us, t1_us, t2_us)))
 
 
-def break_even(device: Device, round_us: float, rows: list[dict[str, Any]]) -> dict[str, Any]:
+def break_even(device: Device, round_us: float, rows: Sequence[RatedDistance]) -> BreakEven:
+    """Each distance's per-round rate against the best and the median idle qubit of ``device`` over ``round_us``."""
     listed = list(device.qubits.items()) or [("defaults", device.defaults)]
     errors = {qid: idle_error(round_us, cal.t1_us, cal.t2_us) for qid, cal in listed}
     best_id = min(errors, key=lambda q: errors[q])
@@ -29,7 +44,7 @@ def break_even(device: Device, round_us: float, rows: list[dict[str, Any]]) -> d
     median = float(np.median(list(errors.values())))
     per_distance = []
     for row in rows:
-        eps, high = row["per_round_rate"], row["high"]
+        eps, high = row.per_round_rate, row.high
         if eps is None:
             verdict = "unknown"
         elif eps < best:
@@ -38,21 +53,17 @@ def break_even(device: Device, round_us: float, rows: list[dict[str, Any]]) -> d
             verdict = "beats the median idle qubit"
         else:
             verdict = "does not"
-        per_distance.append({
-            "distance": row["distance"], "per_round_rate": eps, "verdict": verdict,
-            "beats_best": None if eps is None else bool(eps < best),
-            "beats_median": None if eps is None else bool(eps < median),
-            "beats_best_at_95": None if high is None else bool(high < best),
-            "beats_median_at_95": None if high is None else bool(high < median),
-            "ratio_to_best": None if eps is None else eps / best,
-            "ratio_to_median": None if eps is None else eps / median,
-        })
-    return {
-        "round_duration_us": round_us,
-        "idle_error_best": best, "idle_error_median": median, "best_qubit": best_id,
-        "best_qubit_t1_us": dict(listed)[best_id].t1_us, "best_qubit_t2_us": dict(listed)[best_id].t2_us,
-        "qubits_considered": len(errors),
-        "definition": "p_idle = px + py + pz of the Pauli-twirled amplitude and phase damping channel over one "
-                      "round (Tomita & Svore, PRA 90, 062320 (2014), Eqs. 9-10), per listed device qubit",
-        "distances": per_distance,
-    }
+        per_distance.append(BreakEvenRow(
+            distance=row.distance, per_round_rate=eps, verdict=verdict,
+            beats_best=None if eps is None else bool(eps < best),
+            beats_median=None if eps is None else bool(eps < median),
+            beats_best_at_95=None if high is None else bool(high < best),
+            beats_median_at_95=None if high is None else bool(high < median),
+            ratio_to_best=None if eps is None else eps / best,
+            ratio_to_median=None if eps is None else eps / median,
+        ))
+    return BreakEven(
+        round_duration_us=round_us, idle_error_best=best, idle_error_median=median, best_qubit=best_id,
+        best_qubit_t1_us=dict(listed)[best_id].t1_us, best_qubit_t2_us=dict(listed)[best_id].t2_us,
+        qubits_considered=len(errors), distances=tuple(per_distance),
+    )

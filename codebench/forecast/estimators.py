@@ -21,8 +21,8 @@ most) rather than a number.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
-from typing import Any, Sequence
+from dataclasses import dataclass, replace
+from typing import Mapping, Sequence
 
 import numpy as np
 
@@ -34,7 +34,23 @@ from codebench.analysis.suppression import (
     weighted_fit,
 )
 from codebench.codes import CODE_FAMILIES
+from codebench.forecast.details import (
+    DirectDetails,
+    ExtrapolatedDetails,
+    MethodDetails,
+    PowerLawFit,
+    RaisedPoint,
+    SpectrumPoint,
+    SpectrumSummary,
+    StratifiedDetails,
+)
 from codebench.forecast.rare_events import StratifiedEstimate
+from codebench.forecast.result import (
+    DistanceForecast,
+    LambdaStep,
+    LambdaSummary,
+    TargetForecast,
+)
 from codebench.forecast.sampling import Sample
 from codebench.stats import Z95, per_round, wilson_interval
 
@@ -54,9 +70,13 @@ NEAR_THRESHOLD_LAMBDA = 1.5
 NEAR_THRESHOLD_REACH = 2
 
 
-@dataclass
+@dataclass(frozen=True)
 class Estimate:
-    """One distance's per-round rate, its 95% interval and how it was obtained."""
+    """One distance's per-round rate, its 95% interval and how it was obtained.
+
+    ``fit_log_var`` is var(ln eps) when the method computed it itself (direct,
+    extrapolated); otherwise :attr:`log_var` takes it from the interval.
+    """
 
     method: str
     kind: str
@@ -65,8 +85,9 @@ class Estimate:
     high: float | None
     shots: int
     failures: int
-    flags: list[str] = field(default_factory=list)
-    details: dict[str, Any] = field(default_factory=dict)
+    flags: tuple[str, ...] = ()
+    details: MethodDetails | None = None
+    fit_log_var: float | None = None
 
     @property
     def log_rate(self) -> float | None:
@@ -75,31 +96,28 @@ class Estimate:
     @property
     def log_var(self) -> float | None:
         """var(ln eps) for the Lambda fit: from the interval's width on the log scale."""
-        if self.details.get("log_var") is not None:
-            return float(self.details["log_var"])
+        if self.fit_log_var is not None:
+            return float(self.fit_log_var)
         if self.rate is None or not self.low or not self.high or self.low <= 0:
             return None
         return ((math.log(self.high) - math.log(self.low)) / (2 * Z95)) ** 2
 
-    def row(self, distance: int) -> dict[str, Any]:
-        details = {k: v for k, v in self.details.items() if k != "log_var"}
-        return {"distance": distance, "rounds": distance, "per_round_rate": self.rate, "low": self.low,
-                "high": self.high, "method": self.method, "method_kind": self.kind, "shots": self.shots,
-                "failures": self.failures, "flags": list(self.flags), **details,
-                "log_rate": self.log_rate, "log_rate_variance": self.log_var}
+    def flagged(self, *flags: str) -> Estimate:
+        """This estimate with ``flags`` added."""
+        return replace(self, flags=self.flags + flags)
 
 
 def direct_estimate(sample: Sample) -> Estimate:
     k, n, r = sample.failures, sample.shots, sample.rounds
     low_total, high_total = wilson_interval(k, n) if n else (0.0, 1.0)
-    base = {"scales": [1.0]}
+    base = DirectDetails((1.0,))
     if k == 0 or k / n >= 0.5:
         why = "no failures: upper bound only" if k == 0 else "failure probability >= 1/2: saturated"
         return Estimate(f"direct ({why})", "direct", None, per_round(low_total, r) if k else 0.0,
-                        per_round(high_total, r), n, k, [why], base)
+                        per_round(high_total, r), n, k, (why,), base)
     eps, var = per_round_with_variance([k], [n], [r])
     return Estimate("direct", "direct", float(eps[0]), per_round(low_total, r), per_round(high_total, r), n, k,
-                    [], {**base, "log_var": float(var[0])})
+                    (), base, float(var[0]))
 
 
 def extrapolated_estimate(samples: Sequence[Sample], distance: int) -> Estimate:
@@ -107,12 +125,12 @@ def extrapolated_estimate(samples: Sequence[Sample], distance: int) -> Estimate:
     nominal = (distance + 1) / 2.0
     scales = [s.scale for s in samples]
     span = f"{min(scales):g}-{max(scales):g}" if scales else "none"
-    points = [{"scale": s.scale, "shots": s.shots, "failures": s.failures,
-               "per_round_rate": per_round(s.rate, s.rounds) if s.shots else None,
-               "low": per_round(wilson_interval(s.failures, s.shots)[0], s.rounds) if s.shots else None,
-               "high": per_round(wilson_interval(s.failures, s.shots)[1], s.rounds) if s.shots else None}
-              for s in samples]
-    details: dict[str, Any] = {"scales": scales, "points": points}
+    points = tuple(RaisedPoint(s.scale, s.shots, s.failures,
+                               per_round(s.rate, s.rounds) if s.shots else None,
+                               per_round(wilson_interval(s.failures, s.shots)[0], s.rounds) if s.shots else None,
+                               per_round(wilson_interval(s.failures, s.shots)[1], s.rounds) if s.shots else None)
+                   for s in samples)
+    details = ExtrapolatedDetails(tuple(scales), points)
     shots, failures = sum(s.shots for s in samples), sum(s.failures for s in samples)
     flags = [f"only {s.failures} failures at scale {s.scale:g} (fewer than {MIN_SCALE_FAILURES}): left out"
              for s in samples if s.failures < MIN_SCALE_FAILURES]
@@ -120,7 +138,7 @@ def extrapolated_estimate(samples: Sequence[Sample], distance: int) -> Estimate:
     method = f"extrapolated (power law over scales {span})"
     if len(usable) < 2:
         flags.append(f"fewer than 2 scales with {MIN_SCALE_FAILURES} failures: no estimate")
-        return Estimate(method, "extrapolated", None, None, None, shots, failures, flags, details)
+        return Estimate(method, "extrapolated", None, None, None, shots, failures, tuple(flags), details)
     eps, var = per_round_with_variance([s.failures for s in usable], [s.shots for s in usable],
                                        [s.rounds for s in usable])
     x = np.log(np.array([s.scale for s in usable], dtype=np.float64))
@@ -138,27 +156,29 @@ def extrapolated_estimate(samples: Sequence[Sample], distance: int) -> Estimate:
     top = max(usable, key=lambda s: s.scale)
     if top.rate > NEAR_THRESHOLD:
         flags.append(f"scale {top.scale:g} fails {top.rate:.2g} of its shots: close to threshold")
-    details.update({"exponent": b, "exponent_se": se_b, "exponent_nominal": nominal, "fit_chi2": free.chi2,
-                    "fit_dof": free.dof, "fit_inflation": float(free.inflation),
-                    "log_var": ((high - low) / (2 * Z95)) ** 2,
-                    "interval": "envelope of the free-exponent and (d+1)/2-exponent fits, 95% each"})
-    return Estimate(method, "extrapolated", math.exp(a), math.exp(low), math.exp(high), shots, failures, flags,
-                    details)
+    fit = PowerLawFit(b, se_b, nominal, free.chi2, free.dof, float(free.inflation),
+                      "envelope of the free-exponent and (d+1)/2-exponent fits, 95% each")
+    return Estimate(method, "extrapolated", math.exp(a), math.exp(low), math.exp(high), shots, failures,
+                    tuple(flags), replace(details, fit=fit), ((high - low) / (2 * Z95)) ** 2)
 
 
-def stratified_row(estimate: StratifiedEstimate | None, table: dict[int, tuple[int, int]], rounds: int,
-                   mean_faults: float, upper_only: float | None = None) -> Estimate:
-    """The stratified estimate of one distance as a per-round :class:`Estimate`."""
+def stratified_row(estimate: StratifiedEstimate | None, table: Mapping[int, tuple[int, int]], rounds: int,
+                   mean_faults: float, upper_only: float | None = None, *, mechanisms: int,
+                   reused_from: str | None = None) -> Estimate:
+    """The stratified estimate of one distance as a per-round :class:`Estimate`.
+
+    ``mechanisms`` is the size of the point's detector error model and
+    ``reused_from`` the device whose f(w) table was reused (None: drawn anew).
+    """
     shots = sum(n for n, _ in table.values())
     failures = sum(k for _, k in table.values())
-    spectrum = [{"w": w, "shots": n, "failures": k} for w, (n, k) in sorted(table.items())]
-    sampled = [min(table), max(table)] if table else None
-    details: dict[str, Any] = {"w_sampled": sampled, "mean_faults": mean_faults, "spectrum": spectrum}
+    spectrum = tuple(SpectrumPoint(w, n, k) for w, (n, k) in sorted(table.items()))
+    sampled = (min(table), max(table)) if table else None
     if estimate is None:
-        flags = ["no failure in any sampled stratum: upper bound only"]
         high = None if upper_only is None else per_round(upper_only, rounds)
         return Estimate("stratified (no failures: upper bound only)", "stratified", None, 0.0, high, shots,
-                        failures, flags, {**details, "extrapolated_in_w": None})
+                        failures, ("no failure in any sampled stratum: upper bound only",),
+                        StratifiedDetails(sampled, mean_faults, spectrum, None, None, mechanisms, reused_from))
     flags = []
     method = "stratified"
     if estimate.extrapolated:
@@ -166,84 +186,75 @@ def stratified_row(estimate: StratifiedEstimate | None, table: dict[int, tuple[i
                   f"sum dominated by w = {estimate.w_dominant[0]}..{estimate.w_dominant[1]})")
         flags.append(f"{estimate.model_share:.0%} of the estimate comes from the fitted failure spectrum at w that "
                      "were not sampled to 20 failures")
-    details.update({"extrapolated_in_w": estimate.extrapolated, "w_dominant": list(estimate.w_dominant),
-                    "model_share": estimate.model_share, "spectrum_onset": estimate.onset,
-                    "spectrum_terms": estimate.terms, "tail_bound": estimate.tail,
-                    "spectrum_variants": estimate.variants,
-                    "per_experiment": [estimate.rate, estimate.low, estimate.high]})
+    summary = SpectrumSummary(estimate.w_dominant, estimate.model_share, estimate.onset, estimate.terms,
+                              estimate.tail, tuple(estimate.variants),
+                              (estimate.rate, estimate.low, estimate.high))
+    details = StratifiedDetails(sampled, mean_faults, spectrum, estimate.extrapolated, summary, mechanisms,
+                                reused_from)
     return Estimate(method, "stratified", per_round(estimate.rate, rounds), per_round(estimate.low, rounds),
-                    per_round(estimate.high, rounds), shots, failures, flags, details)
+                    per_round(estimate.high, rounds), shots, failures, tuple(flags), details)
 
 
-def lambda_summary(rows: Sequence[dict[str, Any]]) -> tuple[dict[str, Any] | None, list[dict[str, Any]]]:
+def lambda_summary(rows: Sequence[DistanceForecast]) -> tuple[LambdaSummary | None, list[LambdaStep]]:
     """The Lambda fit (shared with :mod:`codebench.analysis`) and the consecutive-pair Lambdas."""
-    usable = [r for r in rows if r["log_rate"] is not None and r["log_rate_variance"] is not None
-              and r["log_rate_variance"] > 0]
+    usable = [(r.distance, r.log_rate, r.log_rate_variance) for r in rows
+              if r.log_rate is not None and r.log_rate_variance is not None and r.log_rate_variance > 0]
     pairs = []
-    for a, b in zip(usable, usable[1:]):
-        lam, low, high = lambda_pair(a["distance"], b["distance"], a["log_rate"], b["log_rate"],
-                                     a["log_rate_variance"], b["log_rate_variance"])
-        pairs.append({"distances": [a["distance"], b["distance"]], "lambda": lam, "low": low, "high": high})
-    if len({r["distance"] for r in usable}) < 2:
+    for (d1, log1, var1), (d2, log2, var2) in zip(usable, usable[1:]):
+        lam, low, high = lambda_pair(d1, d2, log1, log2, var1, var2)
+        pairs.append(LambdaStep((d1, d2), lam, low, high))
+    if len({d for d, _, _ in usable}) < 2:
         return None, pairs
-    fit = fit_lambda([r["distance"] for r in usable], [r["log_rate"] for r in usable],
-                     [r["log_rate_variance"] for r in usable])
+    fit = fit_lambda([d for d, _, _ in usable], [log for _, log, _ in usable], [var for _, _, var in usable])
     consistency = None
     if fit.dof > 0:
         from scipy.stats import chi2
 
         consistency = float(chi2.sf(fit.chi2, fit.dof))
-    return {"lambda": fit.lam, "lambda_low": fit.low, "lambda_high": fit.high, "C": fit.C,
-            "log_cov": fit.log_cov, "distances": fit.distances, "chi2": fit.chi2, "dof": fit.dof,
-            "inflation": fit.inflation, "consistency_p": consistency,
-            "model": "eps_d = C / Lambda^((d+1)/2), weighted least squares in ln eps "
-                     "(Acharya et al., Nature 638, 920 (2025), Eq. 1)"}, pairs
+    return LambdaSummary(fit.lam, fit.low, fit.high, fit.C, tuple(tuple(row) for row in fit.log_cov),
+                         tuple(fit.distances), fit.chi2, fit.dof, fit.inflation, consistency), pairs
 
 
-def constant_lambda_problem(fit: dict[str, Any] | None) -> str | None:
+def constant_lambda_problem(fit: LambdaSummary | None) -> str | None:
     """Why a constant Lambda cannot carry a projection, or ``None`` when it can."""
     if fit is None:
         return "no Lambda fit (fewer than two distances with an estimate)"
-    if fit["lambda_low"] <= 1:
-        return (f"the Lambda interval [{fit['lambda_low']:.3g}, {fit['lambda_high']:.3g}] reaches 1: the device is "
+    if fit.lam_low <= 1:
+        return (f"the Lambda interval [{fit.lam_low:.3g}, {fit.lam_high:.3g}] reaches 1: the device is "
                 "at or near threshold for this code and decoder")
-    p = fit.get("consistency_p")
+    p = fit.consistency_p
     if p is not None and p < LAMBDA_CONSISTENCY:
-        return (f"the distances disagree with one constant Lambda (chi2 = {fit['chi2']:.3g} on {fit['dof']} "
+        return (f"the distances disagree with one constant Lambda (chi2 = {fit.chi2:.3g} on {fit.dof} "
                 f"degree(s) of freedom, p = {p:.2g}): Lambda still changes with d")
     return None
 
 
-def targets(code: str, fit: dict[str, Any] | None, wanted: Sequence[float], largest: int) -> list[dict[str, Any]]:
+def targets(code: str, fit: LambdaSummary | None, wanted: Sequence[float], largest: int) -> list[TargetForecast]:
     """Distance and qubits per target rate from the Lambda fit, or the reason there is none."""
     family = CODE_FAMILIES[code]
     allowed = np.array([d for d in range(1, MAX_DISTANCE + 1) if family.distance_problem(d) is None], dtype=np.int64)
     problem = constant_lambda_problem(fit)
     out = []
     for target in wanted:
-        record: dict[str, Any] = {"target": float(target), "distance": None, "qubits": None, "distance_low": None,
-                                  "distance_high": None, "qubits_low": None, "qubits_high": None,
-                                  "reachable": False, "extrapolation": None, "not_projected": problem}
+        record = TargetForecast(float(target), not_projected=problem)
         if fit is not None and problem is None:
             central, low, high = distances_for_target(
-                allowed, math.log(fit["C"]), math.log(fit["lambda"]), math.log(target),
-                np.asarray(fit["log_cov"], dtype=np.float64), fit["lambda_low"], fit["lambda_high"])
-            if fit["lambda_low"] < NEAR_THRESHOLD_LAMBDA and (central is None
-                                                           or central > NEAR_THRESHOLD_REACH * largest):
-                record["not_projected"] = (
-                    f"near threshold (Lambda {fit['lambda']:.3g} [{fit['lambda_low']:.3g}, {fit['lambda_high']:.3g}] "
+                allowed, math.log(fit.C), math.log(fit.lam), math.log(target),
+                np.asarray(fit.log_cov, dtype=np.float64), fit.lam_low, fit.lam_high)
+            if fit.lam_low < NEAR_THRESHOLD_LAMBDA and (central is None or central > NEAR_THRESHOLD_REACH * largest):
+                out.append(replace(record, not_projected=(
+                    f"near threshold (Lambda {fit.lam:.3g} [{fit.lam_low:.3g}, {fit.lam_high:.3g}] "
                     f"< {NEAR_THRESHOLD_LAMBDA:g}), Lambda drifts with d, and this target would need d > "
                     f"{NEAR_THRESHOLD_REACH * largest}: a constant Lambda is not supported that far; forecast "
-                    "larger distances instead")
-                out.append(record)
+                    "larger distances instead")))
                 continue
-            record.update({
-                "distance": central, "distance_low": low, "distance_high": high,
-                "qubits": None if central is None else family.qubit_count(central),
-                "qubits_low": None if low is None else family.qubit_count(low),
-                "qubits_high": None if high is None else family.qubit_count(high),
-                "reachable": central is not None,
-                "extrapolation": None if central is None else bool(central > largest),
-            })
+            record = replace(
+                record, distance=central, distance_low=low, distance_high=high,
+                qubits=None if central is None else family.qubit_count(central),
+                qubits_low=None if low is None else family.qubit_count(low),
+                qubits_high=None if high is None else family.qubit_count(high),
+                reachable=central is not None,
+                extrapolation=None if central is None else bool(central > largest),
+            )
         out.append(record)
     return out

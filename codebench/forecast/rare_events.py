@@ -62,7 +62,7 @@ import numpy as np
 import numpy.typing as npt
 
 __all__ = [
-    "EMPIRICAL_FAILURES", "REUSE_TOLERANCE", "SpectrumFit", "StratifiedEstimate", "chernoff_tail",
+    "EMPIRICAL_FAILURES", "REUSE_TOLERANCE", "SpectrumFit", "SpectrumVariant", "StratifiedEstimate", "chernoff_tail",
     "fit_spectrum", "odds_spread", "poisson_binomial", "spectrum", "stratified_estimate", "upper_bound_without_failures",
 ]
 
@@ -345,6 +345,27 @@ def upper_bound_without_failures(pmf: FloatArray, tail: float, strata: Mapping[i
     return float(np.dot(pmf, bound)) + tail
 
 
+@dataclass(frozen=True)
+class SpectrumVariant:
+    """One spectrum model tried by :func:`stratified_estimate`: its onset, terms and bend (None: not bent),
+    AIC, P_L with the 95% interval of its refits, whether it was admitted into the envelope, and the strata
+    it was fitted to."""
+
+    onset: int
+    terms: int
+    bend: float | None
+    aic: float
+    rate: float
+    low: float
+    high: float
+    admitted: bool
+    fitted_w: tuple[int, int]
+
+    def to_json(self) -> dict[str, Any]:
+        return {"onset": self.onset, "terms": self.terms, "bend": self.bend, "aic": self.aic, "rate": self.rate,
+                "low": self.low, "high": self.high, "admitted": self.admitted, "fitted_w": list(self.fitted_w)}
+
+
 @dataclass
 class StratifiedEstimate:
     """P_L per experiment with its 95% interval, and how it was obtained."""
@@ -359,7 +380,7 @@ class StratifiedEstimate:
     onset: int
     terms: int
     tail: float
-    variants: list[dict[str, Any]] = field(default_factory=list)
+    variants: list[SpectrumVariant] = field(default_factory=list)
 
 
 def _local_strata(ws: npt.NDArray[np.int64], failures: FloatArray) -> npt.NDArray[np.bool_]:
@@ -454,6 +475,5 @@ def stratified_estimate(pmf: FloatArray, tail: float, strata: Mapping[int, tuple
         rate=rate, low=min(low, rate), high=max(high, rate), extrapolated=share > 0.1,
         w_sampled=(int(ws.min()), int(ws.max())), w_dominant=(int(keep.min()), int(keep.max())),
         model_share=share, onset=fit.k0, terms=int(fit.coefficients.size), tail=tail,
-        variants=[{"onset": v[0].k0, "terms": int(v[0].coefficients.size), "bend": v[0].tilt, "aic": v[0].aic,
-                   "rate": v[1], "low": v[2], "high": v[3], "admitted": v[4],
-                   "fitted_w": [int(lw.min()), int(lw.max())]} for v in variants])
+        variants=[SpectrumVariant(v[0].k0, int(v[0].coefficients.size), v[0].tilt, v[0].aic, v[1], v[2], v[3], v[4],
+                                  (int(lw.min()), int(lw.max()))) for v in variants])

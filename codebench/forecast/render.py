@@ -2,7 +2,7 @@
 
 Files written by :func:`write_outputs` into the ``--out`` folder:
 
-- ``forecast.json``: the forecast dict (``allow_nan=False``, plain types);
+- ``forecast.json``: the forecast's JSON (:meth:`~codebench.forecast.result.ForecastResult.to_json`);
 - ``forecast.csv``: one row per distance;
 - ``forecast.png`` (150 dpi) and ``forecast.svg``: left, the per-round
   logical error against the distance with 95% intervals (circles: direct,
@@ -32,6 +32,8 @@ import matplotlib
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from codebench.forecast.details import ExtrapolatedDetails, StratifiedDetails
+from codebench.forecast.result import DistanceForecast, ForecastResult
 from codebench.results.export import speed_verdict
 
 __all__ = ["CSV_COLUMNS", "forecast_table", "forecast_figure", "write_outputs"]
@@ -47,13 +49,13 @@ DPI = 150
 _COLOURS = ("#1b6ca8", "#d1495b", "#2e8b57", "#8a5a00", "#6a4c93", "#00798c", "#c05a00", "#3d3d3d")
 
 
-def _e(value: Any, digits: int = 3) -> str:
+def _e(value: float | None, digits: int = 3) -> str:
     if value is None:
         return "-"
     return f"{float(value):.{digits}e}"
 
 
-def _g(value: Any, digits: int = 3) -> str:
+def _g(value: float | None, digits: int = 3) -> str:
     if value is None:
         return "-"
     return f"{float(value):.{digits}g}"
@@ -70,128 +72,129 @@ def _columns(rows: Sequence[Sequence[str]], right: Sequence[bool]) -> list[str]:
     return lines
 
 
-def forecast_table(result: dict[str, Any]) -> str:
+def forecast_table(result: ForecastResult) -> str:
     """The forecast as text for the terminal."""
-    improve = result.get("improve") or {}
+    improve = result.improve
     what_if = (" with " + ", ".join(f"{k} x{v:g}" for k, v in improve.items())) if improve else ""
     lines = [
-        f"Forecast for {result['device']}{what_if}",
-        f"{result['code']} memory in the {result['basis']} basis, rounds = d, decoder {result['decoder']}"
-        + (" (per-round rates: the logical qubit fails when either basis fails)" if len(result["bases"]) > 1 else ""),
+        f"Forecast for {result.device}{what_if}",
+        f"{result.code} memory in the {result.basis} basis, rounds = d, decoder {result.decoder}"
+        + (" (per-round rates: the logical qubit fails when either basis fails)" if len(result.bases) > 1 else ""),
         "A model-based projection from the device file: see the cautions at the end.",
         "",
         "Per distance (per-round logical error with 95% interval)",
     ]
     rows = [["d", "qubits", "per round", "95% interval", "per second", "method"]]
-    for r in result["distances"]:
-        interval = f"[{_e(r['low'])}, {_e(r['high'])}]"
-        rate = _e(r["per_round_rate"]) if r["per_round_rate"] is not None else f"< {_e(r['high'])}"
-        per_s = f"{_g(r['per_second_rate'])}/s" if r["per_second_rate"] is not None else "-"
-        method = r["method"]
-        if r.get("method_kind") == "direct":
-            method += f" ({r['failures']:,} failures in {r['shots']:,} shots)"
-        elif r.get("method_kind") == "stratified" and r.get("w_sampled"):
-            method += (f" ({r['failures']:,} failures in {r['shots']:,} shots with w = "
-                       f"{r['w_sampled'][0]}..{r['w_sampled'][1]} faults; mean faults {r['mean_faults']:.3g})")
-        elif r.get("exponent") is not None:
-            method += f", exponent {r['exponent']:.2f} +- {1.96 * r['exponent_se']:.2f}"
-        if r.get("flags"):
+    for r in result.distances:
+        interval = f"[{_e(r.low)}, {_e(r.high)}]"
+        rate = _e(r.per_round_rate) if r.per_round_rate is not None else f"< {_e(r.high)}"
+        per_s = f"{_g(r.per_second_rate)}/s" if r.per_second_rate is not None else "-"
+        method = r.method
+        details = r.details
+        if r.method_kind == "direct":
+            method += f" ({r.failures:,} failures in {r.shots:,} shots)"
+        elif r.method_kind == "stratified" and isinstance(details, StratifiedDetails) and details.w_sampled:
+            method += (f" ({r.failures:,} failures in {r.shots:,} shots with w = "
+                       f"{details.w_sampled[0]}..{details.w_sampled[1]} faults; mean faults {details.mean_faults:.3g})")
+        elif isinstance(details, ExtrapolatedDetails) and details.fit is not None:
+            method += f", exponent {details.fit.exponent:.2f} +- {1.96 * details.fit.exponent_se:.2f}"
+        if r.flags:
             method += " [flagged: see notes]"
-        rows.append([str(r["distance"]), f"{r['qubits']:,}", rate, interval, per_s, method])
+        rows.append([str(r.distance), f"{r.qubits:,}", rate, interval, per_s, method])
     lines += _columns(rows, [True, True, True, False, True, False])
     lines.append("")
-    if result.get("per_basis"):
+    if result.per_basis:
         lines.append("Per basis (per-round logical error with 95% interval)")
-        bases = list(result["per_basis"])
+        bases = list(result.per_basis)
         table = [["d"] + [f"{b} basis" for b in bases]]
-        for i, r in enumerate(result["distances"]):
-            cells = [str(r["distance"])]
+        for i, r in enumerate(result.distances):
+            cells = [str(r.distance)]
             for b in bases:
-                one = result["per_basis"][b][i]
-                cells.append(f"{_e(one['per_round_rate'])} [{_e(one['low'])}, {_e(one['high'])}] {one['method_kind']}")
+                one = result.per_basis[b][i]
+                cells.append(f"{_e(one.per_round_rate)} [{_e(one.low)}, {_e(one.high)}] {one.method_kind}")
             table.append(cells)
         lines += _columns(table, [True] + [False] * len(bases))
         lines.append("")
-    if result["lambda"] is not None:
-        fit = result["lambda_fit"]
-        lines.append(f"Lambda = {result['lambda']:.3f} [{result['lambda_low']:.3f}, {result['lambda_high']:.3f}] "
-                     f"(95%; eps_d = C / Lambda^((d+1)/2) over d = {', '.join(map(str, fit['distances']))}, "
-                     f"C = {fit['C']:.3g}, chi2/dof = {fit['chi2']:.2f}/{fit['dof']})")
-        for pair in result.get("lambda_pairs", []):
-            a, b = pair["distances"]
-            lines.append(f"  eps_{a} / eps_{b}: Lambda = {pair['lambda']:.3f} [{pair['low']:.3f}, {pair['high']:.3f}]")
+    fit = result.lambda_fit
+    if fit is not None:
+        lines.append(f"Lambda = {fit.lam:.3f} [{fit.lam_low:.3f}, {fit.lam_high:.3f}] "
+                     f"(95%; eps_d = C / Lambda^((d+1)/2) over d = {', '.join(map(str, fit.distances))}, "
+                     f"C = {fit.C:.3g}, chi2/dof = {fit.chi2:.2f}/{fit.dof})")
+        for pair in result.lambda_pairs:
+            d1, d2 = pair.distances
+            lines.append(f"  eps_{d1} / eps_{d2}: Lambda = {pair.lam:.3f} [{pair.low:.3f}, {pair.high:.3f}]")
     else:
         lines.append("Lambda: no fit (fewer than two distances with an estimate)")
     lines.append("")
     lines.append("Distance and physical qubits needed per target (per-round logical error)")
     rows = [["target", "d", "qubits", "d range (95%)", "qubits range", "note"]]
-    for t in result["targets"]:
-        if t["distance"] is None:
-            why = "not projected: constant Lambda not supported (see notes)" if t.get("not_projected") else \
+    for t in result.targets:
+        if t.distance is None or t.qubits is None:
+            why = "not projected: constant Lambda not supported (see notes)" if t.not_projected else \
                 "not reached by growing d"
-            rows.append([f"{t['target']:.0e}", "-", "-", "-", "-", why])
+            rows.append([f"{t.target:.0e}", "-", "-", "-", "-", why])
             continue
-        d_range = f"{t['distance_low'] or '-'}-{t['distance_high'] or 'unbounded'}"
-        q_low = f"{t['qubits_low']:,}" if t["qubits_low"] is not None else "-"
-        q_high = f"{t['qubits_high']:,}" if t["qubits_high"] is not None else "unbounded"
+        d_range = f"{t.distance_low or '-'}-{t.distance_high or 'unbounded'}"
+        q_low = f"{t.qubits_low:,}" if t.qubits_low is not None else "-"
+        q_high = f"{t.qubits_high:,}" if t.qubits_high is not None else "unbounded"
         q_range = f"{q_low}-{q_high}"
-        note = "extrapolated beyond the forecast distances" if t["extrapolation"] else ""
-        rows.append([f"{t['target']:.0e}", str(t["distance"]), f"{t['qubits']:,}", d_range, q_range, note])
+        note = "extrapolated beyond the forecast distances" if t.extrapolation else ""
+        rows.append([f"{t.target:.0e}", str(t.distance), f"{t.qubits:,}", d_range, q_range, note])
     lines += _columns(rows, [False, True, True, False, False, False])
     lines.append("")
-    lines.append(f"Round duration: {result['round_duration_us']:.3f} us "
-                 f"({1e6 / result['round_duration_us']:,.0f} rounds per second); per-second rates above are "
+    lines.append(f"Round duration: {result.round_duration_us:.3f} us "
+                 f"({1e6 / result.round_duration_us:,.0f} rounds per second); per-second rates above are "
                  "eps / round duration.")
-    speeds = [r for r in result["distances"] if r.get("decode_us_per_round") is not None]
+    speeds = [(r, r.decode_us_per_round) for r in result.distances if r.decode_us_per_round is not None]
     if speeds:
-        parts = [f"d = {r['distance']}: {r['decode_us_per_round']:.3g} us, "
-                 f"{speed_verdict(r['decode_us_per_round'], r['round_duration_us'])}" for r in speeds]
-        lines.append(f"Decoder {result['decoder']} per round on one worker: " + "; ".join(parts) + ".")
-    be = result["break_even"]
+        parts = [f"d = {r.distance}: {us:.3g} us, {speed_verdict(us, r.round_duration_us)}" for r, us in speeds]
+        lines.append(f"Decoder {result.decoder} per round on one worker: " + "; ".join(parts) + ".")
+    be = result.break_even
     lines.append("")
     lines.append("Break-even: logical error per round against one idle physical qubit over one round "
                  "(Tomita & Svore, PRA 90, 062320 (2014), Eqs. 9-10)")
-    if be["best_qubit"] == "defaults":
-        lines.append(f"  idle qubit with the default T1 {be['best_qubit_t1_us']:g} us, T2 {be['best_qubit_t2_us']:g} us "
-                     f"(the file lists no qubits): {_e(be['idle_error_best'])}")
+    if be.best_qubit == "defaults":
+        lines.append(f"  idle qubit with the default T1 {be.best_qubit_t1_us:g} us, T2 {be.best_qubit_t2_us:g} us "
+                     f"(the file lists no qubits): {_e(be.idle_error_best)}")
     else:
-        lines.append(f"  best idle qubit {be['best_qubit']} (T1 {be['best_qubit_t1_us']:g} us, T2 "
-                     f"{be['best_qubit_t2_us']:g} us): {_e(be['idle_error_best'])}; median over "
-                     f"{be['qubits_considered']} qubits: {_e(be['idle_error_median'])}")
-    for row in be["distances"]:
+        lines.append(f"  best idle qubit {be.best_qubit} (T1 {be.best_qubit_t1_us:g} us, T2 "
+                     f"{be.best_qubit_t2_us:g} us): {_e(be.idle_error_best)}; median over "
+                     f"{be.qubits_considered} qubits: {_e(be.idle_error_median)}")
+    for row in be.distances:
         sure = ""
-        if row["verdict"].startswith("beats the best") and row["beats_best_at_95"]:
+        if row.verdict.startswith("beats the best") and row.beats_best_at_95:
             sure = " (also at the interval's upper end)"
-        elif row["verdict"].startswith("beats the median") and row["beats_median_at_95"]:
+        elif row.verdict.startswith("beats the median") and row.beats_median_at_95:
             sure = " (also at the interval's upper end)"
-        lines.append(f"  d = {row['distance']}: {_e(row['per_round_rate'])} per round: {row['verdict']}{sure}")
-    budget = result["budget"]
+        lines.append(f"  d = {row.distance}: {_e(row.per_round_rate)} per round: {row.verdict}{sure}")
+    budget = result.budget
     lines.append("")
-    lines.append(f"Budget: {budget['work']:.3g} detector-shots planned, {budget['work_spent']:.3g} spent, "
-                 f"in {budget['wall_seconds']:.1f} s wall"
-                 + ("; the hard time limit cut short " + ", ".join(budget["cut_short"]) if budget["cut_short"] else ""))
-    if result["notes"]:
+    lines.append(f"Budget: {budget.work:.3g} detector-shots planned, {budget.work_spent:.3g} spent, "
+                 f"in {budget.wall_seconds:.1f} s wall"
+                 + ("; the hard time limit cut short " + ", ".join(budget.cut_short) if budget.cut_short else ""))
+    if result.notes:
         lines.append("")
         lines.append("Notes:")
-        lines += [f"  - {note}" for note in result["notes"]]
+        lines += [f"  - {note}" for note in result.notes]
     lines.append("")
     lines.append("Cautions:")
-    lines += [f"  - {c}" for c in result["cautions"]]
+    lines += [f"  - {c}" for c in result.cautions]
     return "\n".join(lines)
 
 
-def _csv_rows(result: dict[str, Any]) -> list[dict[str, Any]]:
-    verdicts = {r["distance"]: r for r in result["break_even"]["distances"]}
+def _csv_rows(result: ForecastResult) -> list[dict[str, object]]:
+    """One row per distance: the row's JSON values under :data:`CSV_COLUMNS`, lists joined, with break-even."""
     out = []
-    for r in result["distances"]:
-        be = verdicts.get(r["distance"], {})
-        row = {key: r.get(key) for key in CSV_COLUMNS}
-        row["scales"] = " ".join(f"{s:g}" for s in r.get("scales", []))
-        row["w_sampled"] = "-".join(str(w) for w in r.get("w_sampled") or [])
-        row["flags"] = "; ".join(r.get("flags") or [])
-        row["break_even_verdict"] = be.get("verdict")
-        row["beats_best_idle"] = be.get("beats_best")
-        row["beats_median_idle"] = be.get("beats_median")
+    for r in result.distances:
+        doc = r.to_json()
+        be = result.break_even.row(r.distance)
+        row = {key: doc.get(key) for key in CSV_COLUMNS}
+        row["scales"] = " ".join(f"{s:g}" for s in doc.get("scales", []))
+        row["w_sampled"] = "-".join(str(w) for w in doc.get("w_sampled") or [])
+        row["flags"] = "; ".join(r.flags)
+        row["break_even_verdict"] = None if be is None else be.verdict
+        row["beats_best_idle"] = None if be is None else be.beats_best
+        row["beats_median_idle"] = None if be is None else be.beats_median
         out.append({k: ("" if v is None else v) for k, v in row.items()})
     return out
 
@@ -203,22 +206,33 @@ def _atomic_write(path: Path, text: str) -> None:
     os.replace(tmp, path)
 
 
-def forecast_figure(result: dict[str, Any]) -> Figure:
+def _band(rate: float | None, low: float | None, high: float | None) -> tuple[float, float, float] | None:
+    """(rate, low, high) when all three are known."""
+    if rate is None or low is None or high is None:
+        return None
+    return rate, low, high
+
+
+def _extrapolated_in_w(row: DistanceForecast) -> bool:
+    return isinstance(row.details, StratifiedDetails) and bool(row.details.extrapolated_in_w)
+
+
+def forecast_figure(result: ForecastResult) -> Figure:
     """The two-panel forecast figure (see the module docstring)."""
-    rows = result["distances"]
-    side = [r for r in rows if r.get("method_kind") in ("extrapolated", "stratified")]
+    rows = result.distances
+    side = [r for r in rows if r.method_kind in ("extrapolated", "stratified")]
     fig = Figure(figsize=(11.0 if side else 6.4, 4.6), layout="constrained")
     FigureCanvasAgg(fig)
     if side:
         left, right = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.25, 1.0]})
     else:
         left, right = fig.subplots(1, 1), None
-    fit = result["lambda_fit"]
-    be = result["break_even"]
-    d_fit_max = max(r["distance"] for r in rows)
-    reachable = [t["distance"] for t in result["targets"] if t["distance"] is not None]
+    fit = result.lambda_fit
+    be = result.break_even
+    d_fit_max = max(r.distance for r in rows)
+    reachable = [t.distance for t in result.targets if t.distance is not None]
     d_max = max([d_fit_max] + reachable)
-    d_min = min(r["distance"] for r in rows)
+    d_min = min(r.distance for r in rows)
 
     styles = (("direct", False, "o", None, "direct sampling"),
               ("combined", False, "o", None, "either basis fails"),
@@ -226,25 +240,25 @@ def forecast_figure(result: dict[str, Any]) -> Figure:
               ("stratified", True, "D", "white", "stratified, extrapolated in w"),
               ("extrapolated", False, "s", "white", "extrapolated from raised noise"))
     for kind, in_w, marker, face, label in styles:
-        sel = [r for r in rows if r.get("method_kind") == kind and r["per_round_rate"] is not None
-               and bool(r.get("extrapolated_in_w")) == in_w]
+        sel = [(r.distance, band) for r in rows if r.method_kind == kind and _extrapolated_in_w(r) == in_w
+               and (band := _band(r.per_round_rate, r.low, r.high)) is not None]
         if not sel:
             continue
-        x = [r["distance"] for r in sel]
-        y = [r["per_round_rate"] for r in sel]
-        err = [[v - r["low"] for v, r in zip(y, sel)], [r["high"] - v for v, r in zip(y, sel)]]
+        x = [d for d, _ in sel]
+        y = [v for _, (v, _, _) in sel]
+        err = [[v - lo for _, (v, lo, _) in sel], [hi - v for _, (v, _, hi) in sel]]
         left.errorbar(x, y, yerr=err, fmt=marker, color=_COLOURS[0], mfc=face or _COLOURS[0], ms=7, capsize=4,
                       label=label, zorder=3)
-    flagged = [r for r in rows if r.get("flags") and r["per_round_rate"] is not None]
+    flagged = [(r.distance, r.per_round_rate) for r in rows if r.flags and r.per_round_rate is not None]
     if flagged:
-        left.plot([r["distance"] for r in flagged], [r["per_round_rate"] for r in flagged], "o", ms=15, mfc="none",
+        left.plot([d for d, _ in flagged], [v for _, v in flagged], "o", ms=15, mfc="none",
                   mec=_COLOURS[1], mew=1.2, zorder=4, label="flagged: see the notes / JSON flags")
-    bounds = [r for r in rows if r["per_round_rate"] is None and r["high"] is not None]
+    bounds = [(r.distance, r.high) for r in rows if r.per_round_rate is None and r.high is not None]
     if bounds:
-        left.plot([r["distance"] for r in bounds], [r["high"] for r in bounds], "v", color=_COLOURS[0],
+        left.plot([d for d, _ in bounds], [h for _, h in bounds], "v", color=_COLOURS[0],
                   ms=7, label="upper bound (no failures)")
     if fit is not None:
-        c, lam = fit["C"], fit["lambda"]
+        c, lam = fit.C, fit.lam
         ds_line = [d_min + 0.25 * i for i in range(int((d_max - d_min) / 0.25) + 1)]
         inside = [d for d in ds_line if d <= d_fit_max]
         outside = [d for d in ds_line if d >= d_fit_max]
@@ -253,29 +267,29 @@ def forecast_figure(result: dict[str, Any]) -> Figure:
             return float(c / lam ** ((d + 1) / 2))
 
         left.plot(inside, [line(d) for d in inside], "-", color=_COLOURS[1],
-                  label=f"fit: Lambda = {lam:.3g} [{result['lambda_low']:.3g}, {result['lambda_high']:.3g}]")
+                  label=f"fit: Lambda = {lam:.3g} [{fit.lam_low:.3g}, {fit.lam_high:.3g}]")
         if len(outside) > 1:
             left.plot(outside, [line(d) for d in outside], "--", color=_COLOURS[1], label="fit, extrapolated")
-    for i, t in enumerate(result["targets"]):
-        left.axhline(t["target"], color="0.55", lw=0.8, ls=":")
-        text = f"target {t['target']:.0e}" + (f": d = {t['distance']}, {t['qubits']:,} qubits"
-                                              if t["distance"] is not None else
-                                              ": not projected (constant Lambda not supported)"
-                                              if t.get("not_projected") else ": not reached")
-        left.annotate(text, (d_min, t["target"]), xytext=(2, 2), textcoords="offset points", fontsize=7,
+    for t in result.targets:
+        left.axhline(t.target, color="0.55", lw=0.8, ls=":")
+        text = f"target {t.target:.0e}" + (f": d = {t.distance}, {t.qubits:,} qubits"
+                                           if t.distance is not None else
+                                           ": not projected (constant Lambda not supported)"
+                                           if t.not_projected else ": not reached")
+        left.annotate(text, (d_min, t.target), xytext=(2, 2), textcoords="offset points", fontsize=7,
                       color="0.35")
-        if t["distance"] is not None and fit is not None:
-            left.plot([t["distance"]], [t["target"]], "x", color=_COLOURS[1], ms=6)
-    left.axhline(be["idle_error_best"], color=_COLOURS[2], lw=1.2, ls="-.",
-                 label=f"idle qubit, best ({be['best_qubit']}): {be['idle_error_best']:.2g}")
-    if be["qubits_considered"] > 1:
-        left.axhline(be["idle_error_median"], color=_COLOURS[3], lw=1.2, ls="-.",
-                     label=f"idle qubit, median: {be['idle_error_median']:.2g}")
+        if t.distance is not None and fit is not None:
+            left.plot([t.distance], [t.target], "x", color=_COLOURS[1], ms=6)
+    left.axhline(be.idle_error_best, color=_COLOURS[2], lw=1.2, ls="-.",
+                 label=f"idle qubit, best ({be.best_qubit}): {be.idle_error_best:.2g}")
+    if be.qubits_considered > 1:
+        left.axhline(be.idle_error_median, color=_COLOURS[3], lw=1.2, ls="-.",
+                     label=f"idle qubit, median: {be.idle_error_median:.2g}")
     left.set_yscale("log")
     left.set_xlabel("code distance d")
     left.set_ylabel("logical error per round")
-    left.set_title(f"{result['device']}: {result['code']} ({result['basis']}), {result['decoder']}; "
-                   f"round {result['round_duration_us']:.3g} us", fontsize=9)
+    left.set_title(f"{result.device}: {result.code} ({result.basis}), {result.decoder}; "
+                   f"round {result.round_duration_us:.3g} us", fontsize=9)
     left.grid(True, which="major", alpha=0.3)
     left.legend(fontsize=7, loc="best")  # the least-covered corner: markers stay visible
 
@@ -284,24 +298,25 @@ def forecast_figure(result: dict[str, Any]) -> Figure:
     return fig
 
 
-def _side_panel(ax: Any, rows: Sequence[dict[str, Any]]) -> None:
+def _side_panel(ax: Any, rows: Sequence[DistanceForecast]) -> None:
     """The failure spectrum f(w) of stratified distances, or the raised-noise points of extrapolated ones."""
     from codebench.stats import wilson_interval
 
-    stratified = [r for r in rows if r.get("method_kind") == "stratified"]
+    stratified = [(r.distance, r.details) for r in rows
+                  if r.method_kind == "stratified" and isinstance(r.details, StratifiedDetails)]
     if stratified:
-        for i, r in enumerate(stratified):
+        for i, (distance, details) in enumerate(stratified):
             colour = _COLOURS[i % len(_COLOURS)]
-            pts = [p for p in r.get("spectrum") or [] if p["failures"] > 0]
+            pts = [p for p in details.spectrum if p.failures > 0]
             if not pts:
                 continue
-            f = [p["failures"] / p["shots"] for p in pts]
-            bands = [wilson_interval(p["failures"], p["shots"]) for p in pts]
-            ax.errorbar([p["w"] for p in pts], f, yerr=[[v - b[0] for v, b in zip(f, bands)],
-                                                         [b[1] - v for v, b in zip(f, bands)]],
-                        fmt="D", ms=4, color=colour, capsize=2, label=f"d = {r['distance']}")
-            if r.get("w_dominant"):
-                a, b = r["w_dominant"]
+            f = [p.failures / p.shots for p in pts]
+            bands = [wilson_interval(p.failures, p.shots) for p in pts]
+            ax.errorbar([p.w for p in pts], f, yerr=[[v - b[0] for v, b in zip(f, bands)],
+                                                     [b[1] - v for v, b in zip(f, bands)]],
+                        fmt="D", ms=4, color=colour, capsize=2, label=f"d = {distance}")
+            if details.w_dominant:
+                a, b = details.w_dominant
                 ax.axvspan(a - 0.5, b + 0.5, color=colour, alpha=0.08)
         ax.set_xlabel("faults per shot w (shaded: the w that dominate P_L)")
         ax.set_ylabel("failure probability given w faults, f(w)")
@@ -310,21 +325,24 @@ def _side_panel(ax: Any, rows: Sequence[dict[str, Any]]) -> None:
     else:
         for i, r in enumerate(rows):
             colour = _COLOURS[i % len(_COLOURS)]
-            points = r.get("points") or []
-            good = [p for p in points if p["failures"] > 0 and p["per_round_rate"] is not None]
+            raised = r.details if isinstance(r.details, ExtrapolatedDetails) else None
+            points = raised.points if raised is not None else ()
+            good = [(p.scale, band) for p in points
+                    if p.failures > 0 and (band := _band(p.per_round_rate, p.low, p.high)) is not None]
             if good:
-                ax.errorbar([p["scale"] for p in good], [p["per_round_rate"] for p in good],
-                            yerr=[[p["per_round_rate"] - p["low"] for p in good],
-                                  [p["high"] - p["per_round_rate"] for p in good]],
-                            fmt=".", color=colour, capsize=2, label=f"d = {r['distance']}, raised noise")
-            if r["per_round_rate"] is not None and r.get("exponent") is not None:
-                top = max(p["scale"] for p in points)
+                ax.errorbar([s for s, _ in good], [v for _, (v, _, _) in good],
+                            yerr=[[v - lo for _, (v, lo, _) in good], [hi - v for _, (v, _, hi) in good]],
+                            fmt=".", color=colour, capsize=2, label=f"d = {r.distance}, raised noise")
+            at_one = _band(r.per_round_rate, r.low, r.high)
+            exponent = None if raised is None else raised.exponent
+            if at_one is not None and exponent is not None:
+                rate, low, high = at_one
+                top = max(p.scale for p in points)
                 xs = [math.exp(math.log(top) * k / 40) for k in range(41)]
-                ax.plot(xs, [r["per_round_rate"] * x ** r["exponent"] for x in xs], "--", color=colour, lw=1)
-                ax.errorbar([1.0], [r["per_round_rate"]],
-                            yerr=[[r["per_round_rate"] - r["low"]], [r["high"] - r["per_round_rate"]]],
+                ax.plot(xs, [rate * x ** exponent for x in xs], "--", color=colour, lw=1)
+                ax.errorbar([1.0], [rate], yerr=[[rate - low], [high - rate]],
                             fmt="s", mfc="white", color=colour, capsize=3,
-                            label=f"d = {r['distance']}, at s = 1 (exponent {r['exponent']:.2f})")
+                            label=f"d = {r.distance}, at s = 1 (exponent {exponent:.2f})")
         ax.set_xscale("log")
         ax.set_yscale("log")
         ax.set_xlabel("noise scale s (1 = the device)")
@@ -335,12 +353,12 @@ def _side_panel(ax: Any, rows: Sequence[dict[str, Any]]) -> None:
         ax.legend(fontsize=7, loc="lower right")
 
 
-def write_outputs(result: dict[str, Any], folder: str | Path) -> list[Path]:
+def write_outputs(result: ForecastResult, folder: str | Path) -> list[Path]:
     """Write forecast.json, forecast.csv, forecast.png and forecast.svg into ``folder``."""
     out = Path(folder)
     out.mkdir(parents=True, exist_ok=True)
     paths = [out / "forecast.json", out / "forecast.csv", out / "forecast.png", out / "forecast.svg"]
-    _atomic_write(paths[0], json.dumps(result, indent=2, allow_nan=False) + "\n")
+    _atomic_write(paths[0], json.dumps(result.to_json(), indent=2, allow_nan=False) + "\n")
     rows = _csv_rows(result)
     fd, tmp = tempfile.mkstemp(prefix=".forecast-", suffix=".csv", dir=out)
     with os.fdopen(fd, "w", newline="") as handle:

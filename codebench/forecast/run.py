@@ -41,15 +41,14 @@ import tempfile
 import time
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable, Mapping, Sequence
-
-import numpy as np
+from typing import Callable, Mapping, Sequence
 
 from codebench.codes import CODE_FAMILIES
 from codebench.engine.executors import Executor, make_executor
 from codebench.errors import ConfigError, not_allowed
 from codebench.forecast import strata as strata_plan
 from codebench.forecast.breakeven import break_even
+from codebench.forecast.details import MethodDetails
 from codebench.forecast.estimators import (
     Estimate,
     constant_lambda_problem,
@@ -66,6 +65,12 @@ from codebench.forecast.request import (
     DEFAULT_TARGETS,
     ForecastRequest,
     parse_bases,
+)
+from codebench.forecast.result import (
+    BudgetSummary,
+    DistanceForecast,
+    ForecastResult,
+    plain,
 )
 from codebench.forecast.sampling import Sample, Sampler, SharedPool
 from codebench.forecast.whatif import improve_device
@@ -123,13 +128,14 @@ def forecast(
     method: str | Mapping[int, str] = "auto",
     progress: bool = False,
     executor_factory: Callable[[int], Executor] | None = None,
-) -> dict[str, Any]:
+) -> ForecastResult:
     """Forecast a device's logical qubit; see :class:`ForecastRequest` for the parameters.
 
-    ``basis`` is ``"Z"``, ``"X"``, ``"Z,X"`` or ``"both"``. Returns plain JSON
-    types (``json.dumps(..., allow_nan=False)`` works); keys ``device, code,
-    basis, decoder, round_duration_us, distances, lambda, lambda_low,
-    lambda_high, targets, break_even`` and more (see the README).
+    ``basis`` is ``"Z"``, ``"X"``, ``"Z,X"`` or ``"both"``. Returns a
+    :class:`~codebench.forecast.result.ForecastResult`: per distance the
+    per-round rate with its interval and method, Lambda, the target
+    distances, break-even, the budget and notes; its ``to_json()`` is the
+    document of ``forecast.json`` (plain JSON types, see the README).
     """
     family = CODE_FAMILIES.get(code)
     bases = parse_bases(basis, family.bases if family is not None else ("Z", "X"))
@@ -140,7 +146,7 @@ def forecast(
     return run_forecast(request)
 
 
-def run_forecast(request: ForecastRequest) -> dict[str, Any]:
+def run_forecast(request: ForecastRequest) -> ForecastResult:
     """Run a checked :class:`ForecastRequest`; the result as in :func:`forecast`."""
     request = request.checked()
     source = "<device>"
@@ -175,13 +181,12 @@ def run_forecast(request: ForecastRequest) -> dict[str, Any]:
                   f"{budget.estimated_seconds(count):.0f} s on {count} worker(s) at the reference rate",
                   file=sys.stderr, flush=True)
         try:
-            per_basis: dict[str, list[dict[str, Any]]] = {basis: _forecast_basis(context, basis, index)
-                         for index, basis in enumerate(request.bases)}
+            per_basis: dict[str, list[Sampled]] = {
+                basis: _forecast_basis(context, basis, index) for index, basis in enumerate(request.bases)}
         finally:
             pool.shutdown()
-        wall = time.perf_counter() - started
-        result = _assemble(context, per_basis, source if not isinstance(request.device, Device) else None)
-        result["budget"]["wall_seconds"] = wall  # reported, never planned with
+        wall = time.perf_counter() - started  # reported, never planned with
+        result = _assemble(context, per_basis, source if not isinstance(request.device, Device) else None, wall)
         if out_dir is not None:
             from codebench.forecast.render import write_outputs
 
@@ -189,7 +194,7 @@ def run_forecast(request: ForecastRequest) -> dict[str, Any]:
     finally:
         if tmp is not None:
             tmp.cleanup()
-    json.dumps(result, allow_nan=False)  # the promise of plain, finite JSON
+    json.dumps(result.to_json(), allow_nan=False)  # the promise of plain, finite JSON
     return result
 
 
@@ -197,7 +202,21 @@ def run_forecast(request: ForecastRequest) -> dict[str, Any]:
 # one basis
 
 
-def _forecast_basis(context: Context, basis: Basis, index: int) -> list[dict[str, Any]]:
+@dataclass(frozen=True)
+class Sampled:
+    """One basis's estimate of one distance, before the result is assembled.
+
+    ``pilot_only``: the hard time limit came first; the pilot's counts, no decoder timing.
+    """
+
+    distance: int
+    estimate: Estimate
+    reason: str
+    decode_us_per_round: float | None
+    pilot_only: bool = False
+
+
+def _forecast_basis(context: Context, basis: Basis, index: int) -> list[Sampled]:
     request = context.request
     ds = list(request.distances)
     sampler = Sampler(context.store, context.device_file, request.code, basis, request.decoder_name, request.seed,
@@ -212,7 +231,7 @@ def _forecast_basis(context: Context, basis: Basis, index: int) -> list[dict[str
         detectors = one.detectors if one is not None else 0
         if one is None or context.pool.stopped:
             context.budget.cut_short.append(f"{basis}:d={d}")
-            rows.append(_cut_short(d, one, context))
+            rows.append(_cut_short(d, one))
             continue
         method, reason = _choose(request.method_of(d), one, share)
         if method == "direct":
@@ -224,13 +243,10 @@ def _forecast_basis(context: Context, basis: Basis, index: int) -> list[dict[str
             estimate = sample_raised(sampler, d, share, scale_cap(context.device), detectors)
         else:
             estimate = _stratified(context, sampler, d, share)
-        row = estimate.row(d)
-        row["reason"] = reason
         if context.budget.expired():
-            row["flags"].append("cut short by the hard time limit: fewer shots than planned, wider interval")
+            estimate = estimate.flagged("cut short by the hard time limit: fewer shots than planned, wider interval")
             context.budget.cut_short.append(f"{basis}:d={d}")
-        _add_decode_speed(row, sampler)
-        rows.append(row)
+        rows.append(Sampled(d, estimate, reason, _decode_speed(d, sampler)))
     return rows
 
 
@@ -262,136 +278,133 @@ def _stratified(context: Context, sampler: Sampler, distance: int, share: float)
                                       lambda: context.pool.stopped or context.budget.expired(),
                                       library=context.store / "strata", source=label)
     context.budget.charge(result.work)
-    row = stratified_row(result.estimate, result.table, distance, result.mean_faults, result.upper_bound)
-    row.details["mechanisms"] = result.mechanisms
-    row.details["table_reused_from"] = result.reused_from
+    estimate = stratified_row(result.estimate, result.table, distance, result.mean_faults, result.upper_bound,
+                              mechanisms=result.mechanisms, reused_from=result.reused_from)
     if result.reused_from is not None:
-        row.flags.append(f"f(w) table reused from {result.reused_from} (odds proportional within "
-                         f"{result.odds_spread:.2%}; its batches were decoded with that device's weights)")
-    return row
+        estimate = estimate.flagged(f"f(w) table reused from {result.reused_from} (odds proportional within "
+                                    f"{result.odds_spread:.2%}; its batches were decoded with that device's weights)")
+    return estimate
 
 
-def _cut_short(distance: int, pilot: Sample | None, context: Context) -> dict[str, Any]:
+def _cut_short(distance: int, pilot: Sample | None) -> Sampled:
     estimate = direct_estimate(pilot) if pilot is not None else Estimate("not sampled", "direct", None, None, None,
                                                                          0, 0)
-    row = estimate.row(distance)
-    row["flags"].append("cut short by the hard time limit: pilot counts only")
-    row["reason"] = "time limit reached before this distance"
-    row["qubits"] = CODE_FAMILIES[context.request.code].qubit_count(distance)
-    return row
+    return Sampled(distance, estimate.flagged("cut short by the hard time limit: pilot counts only"),
+                   "time limit reached before this distance", None, pilot_only=True)
 
 
-def _add_decode_speed(row: dict[str, Any], sampler: Sampler) -> None:
-    at_one = sampler.samples.get((row["distance"], 1.0))
-    row["decode_us_per_round"] = (None if at_one is None or at_one.shots == 0 else
-                                  decode_us_per_round(at_one.decode_seconds, at_one.shots, at_one.rounds))
+def _decode_speed(distance: int, sampler: Sampler) -> float | None:
+    at_one = sampler.samples.get((distance, 1.0))
+    return (None if at_one is None or at_one.shots == 0 else
+            decode_us_per_round(at_one.decode_seconds, at_one.shots, at_one.rounds))
 
 
 # ---------------------------------------------------------------------------
 # the result
 
 
-def _either_basis(per_basis: dict[str, list[dict[str, Any]]]) -> list[dict[str, Any]]:
+def _row(distance: int, round_us: float, qubits: int, *, rate: float | None, low: float | None,
+         high: float | None, method: str, kind: str, shots: int, failures: int, flags: tuple[str, ...],
+         details: MethodDetails | None, log_rate: float | None, log_var: float | None, reason: str | None,
+         decode_us: float | None, pilot_only: bool) -> DistanceForecast:
+    """A distance's row, with its qubits, round duration and per-second rates."""
+    per_s = 1e6 / round_us
+    return DistanceForecast(
+        distance=distance, rounds=distance, per_round_rate=rate, low=low, high=high, method=method,
+        method_kind=kind, shots=shots, failures=failures, flags=flags, details=details, log_rate=log_rate,
+        log_rate_variance=log_var, reason=reason, decode_us_per_round=decode_us, qubits=qubits,
+        round_duration_us=round_us,
+        per_second_rate=None if rate is None else rate * per_s,
+        per_second_low=None if low is None else low * per_s,
+        per_second_high=None if high is None else high * per_s,
+        keeps_up=None if decode_us is None else bool(decode_us <= round_us),
+        pilot_only=pilot_only,
+    )
+
+
+def _basis_row(sampled: Sampled, round_us: float, qubits: int) -> DistanceForecast:
+    e = sampled.estimate
+    return _row(sampled.distance, round_us, qubits, rate=e.rate, low=e.low, high=e.high, method=e.method,
+                kind=e.kind, shots=e.shots, failures=e.failures, flags=e.flags, details=e.details,
+                log_rate=e.log_rate, log_var=e.log_var, reason=sampled.reason,
+                decode_us=sampled.decode_us_per_round, pilot_only=sampled.pilot_only)
+
+
+def _either_fails(values: Sequence[float | None]) -> float | None:
+    """1 - prod(1 - v): the chance that any of independent events of probabilities ``values`` happens."""
+    if any(v is None for v in values):
+        return None
+    return 1 - math.prod(1 - v for v in values if v is not None)
+
+
+def _either_basis(per_basis: Mapping[str, Sequence[DistanceForecast]]) -> list[DistanceForecast]:
     """The logical qubit fails in a round when either basis does (module docstring)."""
     bases = list(per_basis)
     out = []
     for rows in zip(*per_basis.values()):
-        d = rows[0]["distance"]
-        rates = [r["per_round_rate"] for r in rows]
-        highs = [r["high"] for r in rows]
-        lows = [r["low"] or 0.0 for r in rows]
-        rate = None if any(v is None for v in rates) else 1 - math.prod(1 - v for v in rates)
-        high = None if any(v is None for v in highs) else 1 - math.prod(1 - v for v in highs)
-        low = 1 - math.prod(1 - v for v in lows)
+        first = rows[0]
+        rate = _either_fails([r.per_round_rate for r in rows])
+        high = _either_fails([r.high for r in rows])
+        low = 1 - math.prod(1 - v for v in [r.low or 0.0 for r in rows])
         log_var = None
-        if rate and all(r["log_rate_variance"] is not None for r in rows):
-            log_var = sum((r["per_round_rate"] ** 2) * r["log_rate_variance"] for r in rows) / rate**2
-        out.append({
-            "distance": d, "rounds": d, "per_round_rate": rate, "low": low, "high": high,
-            "method": "either basis fails: " + "; ".join(f"{b}: {r['method']}" for b, r in zip(bases, rows)),
-            "method_kind": "combined", "shots": sum(r["shots"] for r in rows),
-            "failures": sum(r["failures"] for r in rows), "flags": [f for r in rows for f in r["flags"]],
-            "log_rate": None if not rate else math.log(rate), "log_rate_variance": log_var,
-            "decode_us_per_round": max((r.get("decode_us_per_round") or 0.0) for r in rows) or None,
-        })
+        if rate and all(r.log_rate_variance is not None for r in rows):
+            log_var = sum((r.per_round_rate or 0.0) ** 2 * (r.log_rate_variance or 0.0) for r in rows) / rate**2
+        out.append(_row(
+            first.distance, first.round_duration_us, first.qubits, rate=rate, low=low, high=high,
+            method="either basis fails: " + "; ".join(f"{b}: {r.method}" for b, r in zip(bases, rows)),
+            kind="combined", shots=sum(r.shots for r in rows), failures=sum(r.failures for r in rows),
+            flags=tuple(f for r in rows for f in r.flags), details=None,
+            log_rate=None if not rate else math.log(rate), log_var=log_var, reason=None,
+            decode_us=max((r.decode_us_per_round or 0.0) for r in rows) or None, pilot_only=False))
     return out
 
 
-def _assemble(context: Context, per_basis: dict[str, list[dict[str, Any]]], device_file: str | None) -> dict[str, Any]:
+def _assemble(context: Context, sampled: dict[str, list[Sampled]], device_file: str | None,
+              wall_seconds: float) -> ForecastResult:
     request = context.request
     family = CODE_FAMILIES[request.code]
     notes = context.notes
-    rows = per_basis[request.bases[0]] if len(per_basis) == 1 else _either_basis(per_basis)
     model = DeviceNoise(1.0, device=context.device.canonical_json())
     durations = {d: model.round_duration_ns(family.ideal_circuit(d, d, request.bases[0],
                                                                  model.circuit_gate_set())) / 1000.0
                  for d in request.distances}
-    for group in [rows, *per_basis.values()]:
-        for row in group:
-            row["qubits"] = family.qubit_count(row["distance"])
-            row["round_duration_us"] = durations[row["distance"]]
-            per_s = 1e6 / row["round_duration_us"]
-            for key, src in (("per_second_rate", "per_round_rate"), ("per_second_low", "low"),
-                             ("per_second_high", "high")):
-                row[key] = None if row[src] is None else row[src] * per_s
-            row["keeps_up"] = (None if row.get("decode_us_per_round") is None
-                               else bool(row["decode_us_per_round"] <= row["round_duration_us"]))
+    per_basis = {basis: [_basis_row(s, durations[s.distance], family.qubit_count(s.distance)) for s in rows]
+                 for basis, rows in sampled.items()}
+    rows = per_basis[request.bases[0]] if len(per_basis) == 1 else _either_basis(per_basis)
     fit, pairs = lambda_summary(rows)
     problem = constant_lambda_problem(fit)
-    if fit is not None and fit["lambda"] <= 1:
-        notes.append(f"Lambda = {fit['lambda']:.3g} <= 1: the device is not below threshold for this code and "
+    if fit is not None and fit.lam <= 1:
+        notes.append(f"Lambda = {fit.lam:.3g} <= 1: the device is not below threshold for this code and "
                      "decoder; growing the distance does not reach the targets.")
     if problem is not None:
         notes.append(f"no target distances: a constant Lambda is not supported ({problem}).")
     target_rows = targets(request.code, fit, request.targets, max(request.distances))
-    for reason in dict.fromkeys(t["not_projected"] for t in target_rows if t["not_projected"] and problem is None):
+    for reason in dict.fromkeys(t.not_projected for t in target_rows if t.not_projected and problem is None):
         notes.append(f"some targets are not projected: {reason}.")
-    if any(t["extrapolation"] for t in target_rows):
+    if any(t.extrapolation for t in target_rows):
         notes.append(f"target distances beyond d = {max(request.distances)} extrapolate the Lambda fit; treat them "
                      "as order-of-magnitude projections.")
     for row in rows:
-        for flag in row["flags"]:
-            notes.append(f"d = {row['distance']}: {flag}.")
+        for flag in row.flags:
+            notes.append(f"d = {row.distance}: {flag}.")
     if context.budget.cut_short:
         notes.append("the hard time limit cut short " + ", ".join(context.budget.cut_short)
                      + "; their intervals reflect the fewer shots (rerun with the same --out to resume).")
     round_us = durations[max(request.distances)]
-    result: dict[str, Any] = {
-        "method_note": "direct: counts at the device's noise; stratified: P_L = sum_w P(W = w) f(w) over the "
-                       "number of faults w; extrapolated: power law in a raised noise scale (module docs)",
-        "device": context.device.name, "device_file": device_file, "device_digest": context.device.digest(),
-        "improve": dict(request.improve), "code": request.code, "basis": ",".join(request.bases),
-        "bases": list(request.bases), "decoder": request.decoder_name, "seed": int(request.seed),
-        "round_duration_us": round_us,
-        "distances": rows,
-        "per_basis": per_basis if len(per_basis) > 1 else None,
-        "lambda": None if fit is None else fit["lambda"],
-        "lambda_low": None if fit is None else fit["lambda_low"],
-        "lambda_high": None if fit is None else fit["lambda_high"],
-        "lambda_fit": fit, "lambda_pairs": pairs, "constant_lambda": problem is None,
-        "targets": target_rows,
-        "break_even": break_even(context.device, round_us, rows),
-        "budget": {"seconds": float(request.budget_seconds), "work": context.budget.total,
-                   "work_spent": context.budget.spent, "hard_limit_reached": bool(context.budget.cut_short),
-                   "cut_short": list(context.budget.cut_short),
-                   "methods": {str(d): request.method_of(d) for d in request.distances}},
-        "cautions": list(CAUTIONS),
-        "notes": notes,
-    }
-    finite: dict[str, Any] = _finite(result)
-    return finite
-
-
-def _finite(value: Any) -> Any:
-    """Plain JSON types; non-finite floats become None."""
-    if isinstance(value, dict):
-        return {str(k): _finite(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_finite(v) for v in value]
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        return float(value) if math.isfinite(float(value)) else None
-    return value
+    result = ForecastResult(
+        device=context.device.name, device_file=device_file, device_digest=context.device.digest(),
+        improve=dict(request.improve), code=request.code, bases=tuple(request.bases),
+        decoder=request.decoder_name, seed=int(request.seed), round_duration_us=round_us,
+        distances=tuple(rows),
+        per_basis={b: tuple(r) for b, r in per_basis.items()} if len(per_basis) > 1 else None,
+        lambda_fit=fit, lambda_pairs=tuple(pairs), constant_lambda=problem is None,
+        targets=tuple(target_rows),
+        break_even=break_even(context.device, round_us, rows),
+        budget=BudgetSummary(
+            seconds=float(request.budget_seconds), work=context.budget.total, work_spent=context.budget.spent,
+            hard_limit_reached=bool(context.budget.cut_short), cut_short=tuple(context.budget.cut_short),
+            methods={str(d): request.method_of(d) for d in request.distances}, wall_seconds=wall_seconds),
+        cautions=tuple(CAUTIONS),
+        notes=tuple(notes),
+    )
+    return plain(result)
