@@ -12,7 +12,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Callable, NoReturn, Sequence
 
 from codebench.build import noisy_circuit
-from codebench.errors import ClusterError, CodebenchError, Interrupted, not_allowed
+from codebench.errors import CodebenchError, Interrupted, RunFault, not_allowed
 from codebench.stats import INTERVALS
 
 if TYPE_CHECKING:
@@ -299,7 +299,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         status: int = args.func(args)
         return status
-    except ClusterError as exc:
+    except RunFault as exc:  # a lost worker or cluster, a full disk: not the input's fault
         print(f"codebench: {exc}", file=sys.stderr)
         return EXIT_FAILURE
     except CodebenchError as exc:
