@@ -144,7 +144,7 @@ class BatchSchedule(Sequence[int]):
     [1024, 2048, 1928]
     >>> schedule = BatchSchedule(2**62, 80000)
     >>> len(schedule), schedule[40], schedule[len(schedule) - 1]
-    (57646075230342, 80000, 30976)
+    (57646075230352, 80000, 72041)
     """
 
     def __init__(self, shot_budget: int, cap: int) -> None:

@@ -17,8 +17,9 @@ import stim
 
 from codebench.circuits import build_memory
 from codebench.codes import get_code_family
-from codebench.layout import Layout
+from codebench.layout import Basis, Layout
 from codebench.noise import get_noise_model
+from codebench.noise.base import NoiseModel
 
 DISTANCES = {"repetition": (2, 3, 4, 5), "rotated_surface": (3, 5, 7)}
 CASES = [(code, d) for code, ds in DISTANCES.items() for d in ds]
@@ -53,13 +54,18 @@ SEARCH_ARGS = dict(
 )
 
 
+
+def layout_circuit(model: NoiseModel, lay: Layout, rounds: int, basis: Basis) -> stim.Circuit:
+    """The memory experiment of a given layout (also a deliberately broken one) decorated by ``model``."""
+    return model.decorate(build_memory(lay, rounds, basis, model.circuit_gate_set()))
+
 def layout(code: str, d: int, basis: str) -> Layout:
     return get_code_family(code).layout(d, basis)
 
 
 def noisy(code: str, d: int, basis: str, noise: str, p: float, rounds: int | None = None, **options: str) -> stim.Circuit:
     r = d if rounds is None else rounds
-    return get_noise_model(noise)(p, **options).memory_circuit(layout(code, d, basis), r, basis)
+    return layout_circuit(get_noise_model(noise)(p, **options), layout(code, d, basis), r, basis)
 
 
 def rounds_for(d: int) -> list[int]:
@@ -142,7 +148,7 @@ def test_noiseless_circuits_have_no_detection_events(code: str, d: int, basis: s
             ideal = build_memory(lay, rounds, basis, gate_set).to_stim()
             _assert_deterministic(ideal, f"{code} d={d} {basis} r={rounds} ideal {gate_set}")
         for noise, options in MODEL_VARIANTS:
-            circuit = get_noise_model(noise)(0.0, **options).memory_circuit(lay, rounds, basis)
+            circuit = layout_circuit(get_noise_model(noise)(0.0, **options), lay, rounds, basis)
             _assert_deterministic(circuit, f"{code} d={d} {basis} r={rounds} {noise} {options} p=0")
 
 
@@ -225,7 +231,7 @@ def test_distance_checks_catch_a_bad_hook_order(d: int, noise: str) -> None:
     # 062320 (2014), Fig. 2). The distance checks above must be able to see it.
     bad = _swapped_gate_order(layout("rotated_surface", d, "Z"))
     for basis in BASES:
-        c = get_noise_model(noise)(0.001).memory_circuit(bad, d, basis)
+        c = layout_circuit(get_noise_model(noise)(0.001), bad, d, basis)
         c.detector_error_model(decompose_errors=True)  # still a valid (deterministic) circuit
         assert len(c.shortest_graphlike_error()) < d
         assert len(c.search_for_undetectable_logical_errors(**SEARCH_ARGS)) < d

@@ -22,7 +22,6 @@ from codebench.decoders import DECODERS
 from codebench.engine.executor import Executor
 from codebench.engine.executors import EXECUTORS
 from codebench.noise import NOISE_MODELS
-from codebench.noise.calibration import load_device
 from codebench.noise.standard import CodeCapacity
 from codebench.records import ClusterSpec
 from codebench.testing import (

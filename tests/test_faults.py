@@ -21,8 +21,8 @@ import signal
 import sqlite3
 import subprocess
 import time
-from contextlib import closing
 from collections.abc import Iterator
+from contextlib import closing
 from pathlib import Path
 
 import plugin_decoder

@@ -131,11 +131,12 @@ def test_qubits_and_round_duration(improved: tuple[ForecastResult, Path]) -> Non
 
 def test_current_device_round_duration() -> None:
     """The current device: reset 250 + 5 x 25 + 4 x 40 + measure 600 = 1135 ns (common practice)."""
+    from codebench.build import family_ideal_circuit
     from codebench.codes import get_code_family
     from codebench.noise.device import DeviceNoise
 
     model = DeviceNoise(1.0, device=load_device(CURRENT).canonical_json())
-    ideal = model.ideal_circuit(get_code_family("rotated_surface").layout(5, "Z"), 5, "Z")
+    ideal = family_ideal_circuit(get_code_family("rotated_surface"), model, 5, 5, "Z")
     assert model.round_duration_ns(ideal) == pytest.approx(1135.0)
 
 

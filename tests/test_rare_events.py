@@ -32,8 +32,8 @@ import stim
 from scipy.stats import chisquare
 
 from codebench.config import parse_sweep
-from codebench.engine.local import InProcessExecutor
 from codebench.engine.fault_sampling import FaultTable, fault_shots, sample_fault_sets
+from codebench.engine.local import InProcessExecutor
 from codebench.engine.worker import compile_point, count_failures
 from codebench.forecast.rare_events import (
     chernoff_tail,
