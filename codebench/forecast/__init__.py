@@ -5,7 +5,7 @@ One job per module:
 - :mod:`~codebench.forecast.request`: the typed, checked :class:`ForecastRequest`;
 - :mod:`~codebench.forecast.whatif`: ``--improve`` edits of the device;
 - :mod:`~codebench.forecast.plan`: the budget in counted work (shots x detectors) and the hard stop;
-- :mod:`~codebench.forecast.sampling`: the shared worker pool and sweeps through the engine;
+- :mod:`~codebench.forecast.sampling`: one executor shared by every sweep, sweeps through the engine;
 - :mod:`~codebench.forecast.strata`: which numbers of faults to sample, and sampling them;
 - :mod:`~codebench.forecast.rare_events`: P(W = w), the failure spectrum, the stratified estimate;
 - :mod:`~codebench.forecast.extrapolation`: the raised-noise power law (``--method extrapolated``);

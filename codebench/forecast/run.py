@@ -72,7 +72,7 @@ from codebench.forecast.result import (
     ForecastResult,
     plain,
 )
-from codebench.forecast.sampling import Sample, Sampler, SharedPool
+from codebench.forecast.sampling import Sample, Sampler
 from codebench.forecast.whatif import improve_device
 from codebench.layout import Basis
 from codebench.noise.calibration import Device, load_device
@@ -106,7 +106,7 @@ class Context:
     device: Device
     store: Path
     device_file: Path
-    pool: SharedPool
+    executor: Executor
     budget: WorkBudget
     notes: list[str]
 
@@ -174,8 +174,8 @@ def run_forecast(request: ForecastRequest) -> ForecastResult:
         budget = WorkBudget.from_request(request.budget_seconds, request.work)
         started = time.perf_counter()
         factory = request.executor_factory or make_executor
-        pool = SharedPool(factory(count), budget)
-        context = Context(request, device, store, device_file, pool, budget, [])
+        executor = factory(count)  # ours: closed below, whatever happens
+        context = Context(request, device, store, device_file, executor, budget, [])
         if request.progress:
             print(f"forecast: plan of {budget.total:.3g} detector-shots of work, about "
                   f"{budget.estimated_seconds(count):.0f} s on {count} worker(s) at the reference rate",
@@ -184,7 +184,7 @@ def run_forecast(request: ForecastRequest) -> ForecastResult:
             per_basis: dict[str, list[Sampled]] = {
                 basis: _forecast_basis(context, basis, index) for index, basis in enumerate(request.bases)}
         finally:
-            pool.shutdown()
+            executor.close(wait=False)
         wall = time.perf_counter() - started  # reported, never planned with
         result = _assemble(context, per_basis, source if not isinstance(request.device, Device) else None, wall)
         if out_dir is not None:
@@ -220,7 +220,7 @@ def _forecast_basis(context: Context, basis: Basis, index: int) -> list[Sampled]
     request = context.request
     ds = list(request.distances)
     sampler = Sampler(context.store, context.device_file, request.code, basis, request.decoder_name, request.seed,
-                      context.pool, context.budget, request.progress)
+                      context.executor, context.budget, request.progress)
     sampler.say(f"basis {basis}: pilot at scale 1 for d = {', '.join(map(str, ds))}")
     sampler.run("pilot", {d: [1.0] for d in ds}, PILOT_FAILURES, PILOT_SHOTS)
     rows = []
@@ -229,7 +229,7 @@ def _forecast_basis(context: Context, basis: Basis, index: int) -> list[Sampled]
         share = context.budget.share(pairs_left - i)
         one = sampler.samples.get((d, 1.0))
         detectors = one.detectors if one is not None else 0
-        if one is None or context.pool.stopped:
+        if one is None or context.budget.expired():
             context.budget.cut_short.append(f"{basis}:d={d}")
             rows.append(_cut_short(d, one))
             continue
@@ -274,8 +274,8 @@ def _stratified(context: Context, sampler: Sampler, distance: int, share: float)
                         source="forecast").points[0]
     label = context.device.name + (" with --improve " + ",".join(f"{k}={v:g}" for k, v in request.improve.items())
                                    if request.improve else "")
-    result = strata_plan.sample_point(point, request.seed, context.pool, share, sampler.say,
-                                      lambda: context.pool.stopped or context.budget.expired(),
+    result = strata_plan.sample_point(point, request.seed, context.executor, share, sampler.say,
+                                      context.budget.expired,
                                       library=context.store / "strata", source=label)
     context.budget.charge(result.work)
     estimate = stratified_row(result.estimate, result.table, distance, result.mean_faults, result.upper_bound,

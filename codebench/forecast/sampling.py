@@ -1,11 +1,11 @@
-"""Sampling for a forecast: one worker pool shared by every sweep, sweeps through the engine.
+"""Sampling for a forecast: one executor shared by every sweep, sweeps through the engine.
 
 Direct and raised-noise points go through :func:`codebench.api.run_sweep`
 (the engine, its workers, the store and resume of ``codebench sweep``) with
 ``noise = "device"``, ``rounds = d`` and the sweep's ``scale`` as the what-if
 factor s. All sweeps use the forecast's seed, so a point sampled again with a
 larger budget reuses its stored batches, and a rerun into the same ``--out``
-folder resumes. Stratified points submit exactly-w batches to the same pool
+folder resumes. Stratified points submit exactly-w batches to the same executor
 (:mod:`codebench.forecast.strata`).
 """
 
@@ -20,65 +20,8 @@ from typing import Any, Mapping, Sequence
 
 from codebench.engine.executors import Executor
 from codebench.forecast.plan import WorkBudget
-from codebench.records import BatchResult, BatchTask
 
-__all__ = ["Sample", "Sampler", "SharedPool"]
-
-
-class HardStop(Exception):
-    """Raised inside a sweep when the forecast's hard stop has passed (the counts so far are kept)."""
-
-
-class SharedPool(Executor):
-    """Wraps an executor so the sweeps of one forecast share its workers.
-
-    ``close(wait=True)`` (the end of one sweep) only drains batches still in
-    flight; ``close(wait=False)`` (an interrupt) really stops the workers.
-    :meth:`shutdown` ends the pool. Past the budget's hard stop,
-    :meth:`completed` raises :class:`HardStop` and the pool stops.
-    """
-
-    name = "shared"
-
-    def __init__(self, inner: Executor, budget: WorkBudget) -> None:
-        self.inner = inner
-        self.budget = budget
-        self.stopped = False
-
-    @property
-    def capacity(self) -> int:
-        return self.inner.capacity
-
-    def submit(self, task: BatchTask) -> None:
-        self.inner.submit(task)
-
-    def completed(self, timeout: float) -> list[BatchResult]:
-        if self.budget.expired():
-            self.shutdown(wait=False)
-            raise HardStop("the forecast's hard time limit passed")
-        return self.inner.completed(timeout)
-
-    def in_flight(self) -> int:
-        return self.inner.in_flight()
-
-    @classmethod
-    def create(cls, options: Mapping[str, Any]) -> SharedPool:
-        raise TypeError("a SharedPool wraps an executor the forecast made; it is not created by name")
-
-    def abandon(self) -> None:
-        self.inner.abandon()
-
-    def close(self, wait: bool = True) -> None:
-        if not wait:
-            self.shutdown(wait=False)
-            return
-        while self.inner.in_flight() and not self.stopped:
-            self.inner.completed(timeout=1.0)
-
-    def shutdown(self, wait: bool = True) -> None:
-        if not self.stopped:
-            self.stopped = True
-            self.inner.close(wait=wait)
+__all__ = ["Sample", "Sampler"]
 
 
 @dataclass
@@ -113,7 +56,7 @@ class Sampler:
     basis: str
     decoder: str
     seed: int
-    pool: SharedPool
+    executor: Executor
     budget: WorkBudget
     progress: bool
     samples: dict[tuple[int, float], Sample] = field(default_factory=dict)
@@ -134,7 +77,7 @@ class Sampler:
         """Sample each (distance, scale) to ``failure_target`` failures or ``shot_budget`` shots."""
         from codebench.api import run_sweep
 
-        if self.pool.stopped:
+        if self.budget.expired():
             return [self.samples[(d, float(s))] for d, scales in points.items() for s in scales
                     if (d, float(s)) in self.samples]
         self.calls += 1
@@ -143,10 +86,10 @@ class Sampler:
                   "study": [self.study(d, scales) for d, scales in points.items()]}
         started = time.perf_counter()
         before = sum(s.work for s in self.samples.values())
-        try:
-            frame = run_sweep(config, out=self.folder, executor=self.pool, progress=self.progress)
-        except HardStop:
-            # The interrupted sweep's batches stay in the store (a rerun resumes them); this
+        frame = run_sweep(config, out=self.folder, executor=self.executor, progress=self.progress,
+                          stop_when=self.budget.expired)
+        if self.budget.expired():
+            # The stopped sweep's batches stay in the store (a rerun resumes them); this
             # forecast keeps the counts it had, and names the distance as cut short.
             if self.progress:
                 print(file=sys.stderr)

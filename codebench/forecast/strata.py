@@ -50,7 +50,6 @@ from codebench.forecast.rare_events import (
     stratified_estimate,
     upper_bound_without_failures,
 )
-from codebench.forecast.sampling import HardStop
 from codebench.forecast.tables import find_reusable, save_table
 from codebench.records import BatchResult, BatchTask, Point
 
@@ -155,14 +154,13 @@ class StrataRun:
                     mine += 1
             if not in_flight:
                 break
-            try:
-                finished = self.executor.completed(timeout=1.0)
-            except HardStop:
-                break
+            finished = self.executor.completed(timeout=1.0)
             for result in finished:
                 w, index = result.batch_index >> STRATUM_SHIFT, result.batch_index & ((1 << STRATUM_SHIFT) - 1)
                 in_flight.discard((w, index))
                 self.strata[w].batches[index] = result
+        if in_flight:  # stopped early: those batches are not waited for, and never come back
+            self.executor.abandon()
         for w, sizes in schedules.items():
             self.strata[w].used = self.strata[w].prefix(sizes, limit)[0]
 
