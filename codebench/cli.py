@@ -12,7 +12,14 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Callable, NoReturn, Sequence
 
 from codebench.build import noisy_circuit
-from codebench.errors import CodebenchError, Interrupted, RunFault, not_allowed
+from codebench.errors import (
+    CodebenchError,
+    ConfigError,
+    Interrupted,
+    OutputError,
+    RunFault,
+    not_allowed,
+)
 from codebench.stats import INTERVALS
 
 if TYPE_CHECKING:
@@ -30,17 +37,30 @@ class _Parser(argparse.ArgumentParser):
         self.exit(EXIT_BAD_INPUT, f"codebench: {message} (see `{self.prog} --help`)\n")
 
 
-def _positive_int(name: str) -> Callable[[str], int]:
+#: Most local worker processes (as codebench.engine.local.MAX_LOCAL_WORKERS; not imported, to start fast).
+MAX_WORKERS = 512
+#: Seeds are unsigned 63-bit integers everywhere (sweep files, forecasts, bootstraps).
+SEED_LIMIT = 2**63
+
+
+def _bounded_int(name: str, low: int, high: int | None = None) -> Callable[[str], int]:
+    """An integer option in [low, high], refused in the usual one-line template naming the option."""
+    allowed = f"an integer in [{low}, {high:,}]" if high is not None else f"an integer >= {low}"
+
     def parse(text: str) -> int:
         try:
             value = int(text)
         except ValueError:
-            value = -1
-        if value < 1:
-            raise argparse.ArgumentTypeError(not_allowed(name, text, "a positive integer"))
+            raise argparse.ArgumentTypeError(not_allowed(name, text, allowed)) from None
+        if value < low or (high is not None and value > high):
+            raise argparse.ArgumentTypeError(not_allowed(name, text, allowed))
         return value
 
     return parse
+
+
+def _positive_int(name: str) -> Callable[[str], int]:
+    return _bounded_int(name, 1)
 
 
 def _address(text: str) -> str:
@@ -68,7 +88,13 @@ def cmd_sweep(args: argparse.Namespace) -> int:
 def cmd_export(args: argparse.Namespace) -> int:
     from codebench.api import export_csv
 
-    path = export_csv(args.dir, args.csv, args.interval)
+    try:
+        path = export_csv(args.dir, args.csv, args.interval)
+    except OutputError as exc:
+        if args.csv is None:
+            raise
+        reason = str(exc).rstrip(".")
+        raise ConfigError(not_allowed("--csv", args.csv, f"a file path codebench can write ({reason})")) from None
     print(f"wrote {path}")
     return EXIT_OK
 
@@ -205,12 +231,14 @@ def cmd_forecast(args: argparse.Namespace) -> int:
 
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="codebench", description="Logical-qubit memory experiments: sample, decode, fit.")
+    parser.add_argument("--debug", action="store_true",
+                        help="after an error, also print its traceback (for reports of a bug or a plug-in's fault)")
     sub = parser.add_subparsers(dest="verb", required=True, parser_class=_Parser)
 
     sweep = sub.add_parser("sweep", help="run or resume a sweep file")
     sweep.add_argument("config", help="sweep file (TOML)")
     sweep.add_argument("--out", help="output folder (default: results/<name>)")
-    sweep.add_argument("--workers", type=_positive_int("--workers"),
+    sweep.add_argument("--workers", type=_bounded_int("--workers", 1, MAX_WORKERS),
                        help="local worker processes (default: all cores; given, it overrides a [cluster] section)")
     sweep.add_argument("--scheduler", metavar="ADDRESS", type=_address,
                        help="run on the Dask cluster of this scheduler, e.g. tcp://head-node:8786 "
@@ -240,7 +268,7 @@ def build_parser() -> argparse.ArgumentParser:
                                  help="95%% binomial interval of the tables (default: wilson)")
         verb_parser.add_argument("--bootstrap", type=_positive_int("--bootstrap"), default=1000,
                                  help="bootstrap resamples for crossing intervals (default: 1000)")
-        verb_parser.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default: 0)")
+        verb_parser.add_argument("--seed", type=_bounded_int("--seed", 0, SEED_LIMIT - 1), default=0, help="seed of the bootstrap (default: 0)")
         verb_parser.set_defaults(func=func)
 
     circuit = sub.add_parser("circuit", help="print one point's noisy stim circuit")
@@ -282,8 +310,8 @@ def build_parser() -> argparse.ArgumentParser:
                          "100 failures in the budget, else stratified by fault count)")
     fc.add_argument("--format", choices=["table", "json"], default="table")
     fc.add_argument("--out", help="folder for forecast.json/.csv/.png/.svg and the sample store")
-    fc.add_argument("--workers", type=_positive_int("--workers"), help="local worker processes (default: all cores)")
-    fc.add_argument("--seed", type=int, default=20260101, help="seed of the sampling (default: 20260101)")
+    fc.add_argument("--workers", type=_bounded_int("--workers", 1, MAX_WORKERS), help="local worker processes (default: all cores)")
+    fc.add_argument("--seed", type=_bounded_int("--seed", 0, SEED_LIMIT - 1), default=20260101, help="seed of the sampling (default: 20260101)")
     fc.add_argument("--quiet", action="store_true", help="no progress lines")
     fc.set_defaults(func=cmd_forecast)
     return parser
@@ -300,16 +328,29 @@ def main(argv: Sequence[str] | None = None) -> int:
         status: int = args.func(args)
         return status
     except RunFault as exc:  # a lost worker or cluster, a full disk: not the input's fault
-        print(f"codebench: {exc}", file=sys.stderr)
+        _report(args, exc)
         return EXIT_FAILURE
     except CodebenchError as exc:
-        print(f"codebench: {exc}", file=sys.stderr)
+        _report(args, exc)
         return EXIT_BAD_INPUT
-    except (KeyboardInterrupt, Interrupted):
+    except (KeyboardInterrupt, Interrupted) as exc:
         # A progress line on a terminal ends without a newline: start a line of our own.
         start = "\n" if sys.stderr.isatty() else ""
-        print(f"{start}codebench: interrupted; finished batches are stored, rerun to resume.", file=sys.stderr)
+        # Interrupted comes from a running sweep, which stores each batch as it finishes; a Ctrl-C
+        # before that (reading and checking the input) has written nothing.
+        what = ("finished batches are stored, rerun to resume" if isinstance(exc, Interrupted)
+                else "nothing was written")
+        print(f"{start}codebench: interrupted; {what}.", file=sys.stderr)
         return EXIT_INTERRUPTED
+
+
+def _report(args: argparse.Namespace, exc: BaseException) -> None:
+    """One line; with ``--debug``, the traceback (a plug-in's own error included) before it."""
+    if getattr(args, "debug", False):
+        import traceback
+
+        traceback.print_exception(exc)
+    print(f"codebench: {exc}", file=sys.stderr)
 
 
 def entry() -> NoReturn:

@@ -428,3 +428,31 @@ def test_circuit_options_are_named_in_messages(args: list[str], fragment: str) -
                           capture_output=True, text=True, timeout=60)
     assert done.returncode == 2 and fragment in done.stderr, done.stderr
     assert "study[0]" not in done.stderr and len(done.stderr.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize(("args", "fragment"), [
+    (["analyze", "{dir}", "--seed", "-1"], "--seed must be an integer in [0, "),
+    (["figures", "{dir}", "--seed", "-1"], "--seed must be an integer in [0, "),
+    (["sweep", "{sweep}", "--workers", "100000"], "--workers must be an integer in [1, 512]"),
+    (["export", "{dir}", "--csv", "/proc/x.csv"], "--csv must be a file path codebench can write"),
+    (["export", "{dir}", "--csv", "{tmp}"], "it is a folder"),
+])
+def test_bad_options_are_one_line_naming_the_option(tmp_path: Path, args: list[str], fragment: str) -> None:
+    sweep = write(tmp_path / "small.toml", FILL_SWEEP.replace("shot_budget = 400000", "shot_budget = 2000"))
+    made = run_limited(["sweep", sweep, "--out", tmp_path / "made", "--workers", 1, "--quiet"], None)
+    assert made.returncode == 0, made.stderr
+    before = sorted(p.name for p in tmp_path.iterdir())
+    filled = [a.format(dir=tmp_path / "made", sweep=sweep, tmp=tmp_path) for a in args]
+    done = run_limited(filled, None)
+    assert done.returncode == 2 and fragment in done.stderr, done.stderr
+    assert len(done.stderr.strip().splitlines()) == 1 and "Traceback" not in done.stderr
+    assert sorted(p.name for p in tmp_path.iterdir()) == before  # no stray file
+
+
+def test_debug_adds_the_traceback_of_a_plugin_error(tmp_path: Path) -> None:
+    sweep = plugin_sweep(tmp_path, "RaisesInDecode")
+    plain = cli_with_plugins("sweep", sweep, "--out", tmp_path / "a", "--quiet")
+    debug = cli_with_plugins("--debug", "sweep", sweep, "--out", tmp_path / "b", "--quiet")
+    assert plain.returncode == debug.returncode == 2
+    assert "Traceback" not in plain.stderr and "Traceback" in debug.stderr
+    assert "lookup table exhausted" in debug.stderr.splitlines()[-1]
