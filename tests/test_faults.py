@@ -456,3 +456,18 @@ def test_debug_adds_the_traceback_of_a_plugin_error(tmp_path: Path) -> None:
     assert plain.returncode == debug.returncode == 2
     assert "Traceback" not in plain.stderr and "Traceback" in debug.stderr
     assert "lookup table exhausted" in debug.stderr.splitlines()[-1]
+
+
+@pytest.mark.parametrize(("args", "fragment"), [
+    (["--distances", "3,10001"], "--distances[1] must be a distance of at most 201; got 10001."),
+    (["--distances", "3,201"], "at most 2,000,000 detectors (this one: about 8,160,800)"),
+])
+def test_forecast_distances_are_bounded_before_anything_is_built(args: list[str], fragment: str) -> None:
+    done = run_limited(["forecast", TESTS.parent / "configs" / "devices" / "larkspur_current.toml", "--work", "1e6",
+                        *args], None)
+    assert done.returncode == 2 and fragment in done.stderr and "Traceback" not in done.stderr, done.stderr
+
+
+def test_forecast_of_a_folder_says_it_is_a_folder(tmp_path: Path) -> None:
+    done = run_limited(["forecast", tmp_path, "--work", "1e6"], None)
+    assert done.returncode == 2 and "is a folder" in done.stderr and "does not exist" not in done.stderr

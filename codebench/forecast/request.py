@@ -9,7 +9,9 @@ from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
+from codebench.build import size_estimate
 from codebench.codes import CODE_FAMILIES
+from codebench.config.study import MAX_DETECTORS, MAX_DISTANCE
 from codebench.decoders import DECODERS
 from codebench.engine.executors import Executor
 from codebench.errors import ConfigError, not_allowed
@@ -98,6 +100,13 @@ class ForecastRequest:
             problem = family.distance_problem(int(d))
             if problem is not None:
                 raise ConfigError(not_allowed(f"--distances[{i}]", d, f"{problem} for {self.code}"))
+            # The distance first: the size estimate builds the layout (10**8 qubits at d = 10,001).
+            detectors = size_estimate(family, int(d), int(d), family.bases[0])[1] if d <= MAX_DISTANCE else 0
+            if d > MAX_DISTANCE:
+                raise ConfigError(not_allowed(f"--distances[{i}]", d, f"a distance of at most {MAX_DISTANCE}"))
+            if detectors > MAX_DETECTORS:
+                raise ConfigError(not_allowed(f"--distances[{i}]", d, f"a distance whose d-round experiment has at "
+                                              f"most {MAX_DETECTORS:,} detectors (this one: about {detectors:,})"))
             checked.append(int(d))
         if len(set(checked)) < 2:
             raise ConfigError(not_allowed("--distances", list(self.distances), "at least two different distances "

@@ -300,6 +300,8 @@ def load_device(path: str | Path) -> Device:
     """Read and validate the device file at ``path`` (``.toml`` or ``.json``)."""
     file = Path(path)
     source = str(path)
+    if file.is_dir():
+        raise DeviceFileError(f"device file {source!r} is a folder; give a device file (TOML or JSON).")
     if not file.is_file():
         raise DeviceFileError(f"device file {source!r} does not exist.")
     try:
