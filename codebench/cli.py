@@ -7,6 +7,7 @@ traceback), 1 anything else, 130 interrupted (finished batches are kept).
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Callable, NoReturn, Sequence
@@ -117,6 +118,17 @@ def _analysis(args: argparse.Namespace) -> tuple[pd.DataFrame, AnalysisResult]:
     return frame, analyze(frame, targets=args.targets, bootstrap=args.bootstrap, seed=args.seed)
 
 
+def _output_folder(args: argparse.Namespace, what: str) -> Path:
+    """Where ``figures`` / ``report`` write: ``--to``, else the results folder unless that is read-only."""
+    if args.to is not None:
+        return Path(args.to)
+    folder = Path(args.dir)
+    if not os.access(folder, os.W_OK):
+        raise ConfigError(f"the results folder '{folder}' is read-only; give --to FOLDER to write the {what} "
+                          "elsewhere.")
+    return folder
+
+
 def cmd_analyze(args: argparse.Namespace) -> int:
     import json
 
@@ -134,8 +146,9 @@ def cmd_figures(args: argparse.Namespace) -> int:
     from codebench.figures import write_figures
 
     frame, result = _analysis(args)
-    paths = write_figures(Path(args.dir), frame, result)
-    print(f"wrote {len(paths)} files into {Path(args.dir) / 'figures'}")
+    target = _output_folder(args, "figures")
+    paths = write_figures(target, frame, result)
+    print(f"wrote {len(paths)} files into {target / 'figures'}")
     return EXIT_OK
 
 
@@ -143,7 +156,7 @@ def cmd_report(args: argparse.Namespace) -> int:
     from codebench.report import write_report
 
     frame, result = _analysis(args)
-    path = write_report(Path(args.dir), frame, result)
+    path = write_report(Path(args.dir), frame, result, to=_output_folder(args, "report"))
     print(f"wrote {path} and {path.parent / 'summary.md'}")
     return EXIT_OK
 
@@ -262,6 +275,9 @@ def build_parser() -> argparse.ArgumentParser:
         verb_parser.add_argument("dir", help="sweep output folder")
         if verb == "analyze":
             verb_parser.add_argument("--format", choices=["table", "json"], default="table")
+        if verb != "analyze":
+            verb_parser.add_argument("--to", metavar="FOLDER",
+                                     help=f"write the {verb} into FOLDER instead of DIR (for read-only results)")
         verb_parser.add_argument("--targets", type=_targets, default=[1e-6, 1e-9, 1e-12],
                                  help="target per-round rates for projections (default: 1e-6,1e-9,1e-12)")
         verb_parser.add_argument("--interval", choices=sorted(INTERVALS), default="wilson",

@@ -357,6 +357,14 @@ def test_a_read_only_store_is_analysed_and_exported_and_refused_for_a_sweep(tmp_
         refused = run_limited(["sweep", sweep, "--out", folder, "--workers", 1, "--quiet"], None)
         assert refused.returncode == 2 and "read-only" in refused.stderr and "damaged" not in refused.stderr
         assert len(refused.stderr.strip().splitlines()) == 1
+        for verb in ("figures", "report"):
+            asked = run_limited([verb, folder, "--bootstrap", 50], None)
+            assert asked.returncode == 2 and "read-only" in asked.stderr and "--to" in asked.stderr
+            assert len(asked.stderr.strip().splitlines()) == 1
+            elsewhere = run_limited([verb, folder, "--bootstrap", 50, "--to", tmp_path / "review"], None)
+            assert elsewhere.returncode == 0, elsewhere.stderr
+        assert (tmp_path / "review" / "report" / "index.html").is_file()
+        assert any((tmp_path / "review" / "figures").glob("*.png"))
         assert {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()} == before
 
 

@@ -145,14 +145,8 @@ class DeviceNoise(NoiseModel):
         mapping = self.device.layout_map(layout.family, layout.distance)
         if mapping is None:
             return {q: None for q in ideal.qubits}
-        if len(mapping) != len(ideal.qubits):
-            entries = self.device.data.get("layouts", [])
-            index = next(i for i, e in enumerate(entries)
-                         if (e.get("code"), e.get("distance")) == (layout.family, layout.distance))
-            raise DeviceFileError(
-                f"device {self.device.name!r}: layouts[{index}].qubits must list {len(ideal.qubits)} device "
-                f"qubits (one per qubit of {layout.family} d={layout.distance}); got {len(mapping)}."
-            )
+        # The device file's reader checked the count (one device qubit per code qubit).
+        assert len(mapping) == len(ideal.qubits)
         return {q: mapping[i] for i, q in enumerate(ideal.qubits)}
 
     def decorate(self, ideal: IdealCircuit) -> stim.Circuit:
