@@ -6,7 +6,7 @@ Cases:
     from 1e-3 to 1e-1, ``--small-shots`` shots each;
 (b) rotated surface code, SI1000 p = 1e-3, d = 3, 7, 11, rounds = d, ``--shots`` shots each.
 
-The bare loop builds the same noisy circuit (``Point.circuit``), its detector error model and a
+The bare loop builds the same noisy circuit (``codebench.build.noisy_circuit``), its detector error model and a
 ``pymatching.Matching``, then samples bit-packed chunks and decodes them, all in this process. The
 engine runs the same points through ``run_sweep`` (a fresh results folder each time, no failure
 target, so both draw the same number of shots) with 1 and with 2 workers. Wall time and CPU time
