@@ -14,6 +14,10 @@ from typing import TYPE_CHECKING, Callable, NoReturn, Sequence
 
 from codebench.build import noisy_circuit
 from codebench.errors import (
+    EXIT_BAD_INPUT,
+    EXIT_FAILURE,
+    EXIT_INTERRUPTED,
+    EXIT_OK,
     CodebenchError,
     ConfigError,
     Interrupted,
@@ -28,7 +32,6 @@ if TYPE_CHECKING:
 
     from codebench.analysis import AnalysisResult
 
-EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
 
 class _Parser(argparse.ArgumentParser):
@@ -367,8 +370,3 @@ def _report(args: argparse.Namespace, exc: BaseException) -> None:
 
         traceback.print_exception(exc)
     print(f"codebench: {exc}", file=sys.stderr)
-
-
-def entry() -> NoReturn:
-    sys.exit(main())
-
