@@ -245,8 +245,32 @@ def cmd_forecast(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+class _VersionAction(argparse.Action):
+    """``--version``: one unwrapped line, then exit 0 (argparse's own action wraps it at 80 columns)."""
+
+    def __call__(self, parser: argparse.ArgumentParser, namespace: argparse.Namespace, values: object,
+                 option_string: str | None = None) -> None:
+        print(_version_line())
+        parser.exit()
+
+
+def _version_line() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    def of(package: str) -> str:
+        try:
+            return version(package)
+        except PackageNotFoundError:
+            return "not installed"
+
+    libraries = ", ".join(f"{name} {of(name)}" for name in ("stim", "pymatching", "ldpc", "numpy"))
+    return f"codebench {of('codebench')} ({libraries}; Python {sys.version.split()[0]})"
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="codebench", description="Logical-qubit memory experiments: sample, decode, fit.")
+    parser.add_argument("--version", action=_VersionAction, nargs=0,
+                        help="print codebench's version and those of the libraries it samples and decodes with")
     parser.add_argument("--debug", action="store_true",
                         help="after an error, also print its traceback (for reports of a bug or a plug-in's fault)")
     sub = parser.add_subparsers(dest="verb", required=True, parser_class=_Parser)

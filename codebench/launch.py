@@ -14,6 +14,9 @@ from typing import NoReturn
 
 from codebench.errors import EXIT_INTERRUPTED
 
+#: Exit status when the reader of standard output went away (128 + SIGPIPE, the shell's convention).
+EXIT_BROKEN_PIPE = 141
+
 
 def entry() -> NoReturn:
     try:
@@ -23,6 +26,9 @@ def entry() -> NoReturn:
     except KeyboardInterrupt:  # in the imports, or in the instants before main's own handler is in place
         print("codebench: interrupted; nothing was written.", file=sys.stderr)
         status = EXIT_INTERRUPTED
+    except BrokenPipeError:  # `codebench circuit ... | head`: the reader has all it wanted
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        status = EXIT_BROKEN_PIPE
     # The interpreter's own shutdown (joining pool threads, stopping the fork server) can take a moment
     # on a busy machine; a further Ctrl-C then must not end in a traceback: leave at once instead.
     signal.signal(signal.SIGINT, _leave_now)

@@ -842,3 +842,11 @@ def test_forecast_with_a_layout_of_wrong_length_writes_nothing(tmp_path: Path,
     lines = [line for line in capsys.readouterr().err.splitlines() if line.strip()]
     assert len(lines) == 1 and "layouts[0].qubits" in lines[0] and "short.toml" in lines[0]
     assert not out.exists()
+
+
+def test_device_points_name_their_rate_a_scale() -> None:
+    # The device model's rate is a what-if factor, not an error probability (its RateMeaning says so).
+    from codebench.build import point_label
+
+    label = point_label(device_point(_line_device(), code="repetition"))
+    assert "scale=1" in label and "p=" not in label

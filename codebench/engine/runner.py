@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from types import FrameType
 from typing import Callable, Iterator, Sequence
 
-from codebench.build import qubit_count
+from codebench.build import point_label, qubit_count
 from codebench.decoders import get_decoder
 from codebench.engine.executors import Executor
 from codebench.engine.models import circuit_of, model_of, pack_model
@@ -91,7 +91,7 @@ class PointRun:
 
     def status(self) -> PointStatus:
         shots, failures, seconds = self.known()
-        return PointStatus(self.stored.point.label(), self.tally, shots, failures, seconds)
+        return PointStatus(point_label(self.stored.point), self.tally, shots, failures, seconds)
 
 
 def _failures_needed(stopping: Stopping) -> float:
