@@ -377,13 +377,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         _report(args, exc)
         return EXIT_BAD_INPUT
     except (KeyboardInterrupt, Interrupted) as exc:
-        # A progress line on a terminal ends without a newline: start a line of our own.
-        start = "\n" if sys.stderr.isatty() else ""
         # Interrupted comes from a running sweep, which stores each batch as it finishes; a Ctrl-C
         # before that (reading and checking the input) has written nothing.
         what = ("finished batches are stored, rerun to resume" if isinstance(exc, Interrupted)
                 else "nothing was written")
-        print(f"{start}codebench: interrupted; {what}.", file=sys.stderr)
+        print(f"codebench: interrupted; {what}.", file=sys.stderr)
         return EXIT_INTERRUPTED
 
 
