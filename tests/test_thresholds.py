@@ -154,6 +154,30 @@ def test_crossings_recover_the_threshold() -> None:
         assert_json_ready(record.to_json())
 
 
+def test_per_round_crossings_equal_the_threshold_at_equal_rounds_and_move_when_rounds_grow() -> None:
+    # The per-round map P -> (1 - (1 - 2P)^(1/r)) / 2 is increasing (common practice), so curves with the
+    # same r cross where their whole-experiment curves do (between the same two sampled p; the linear
+    # interpolation in between sees the mapped values, so the two agree closely, not exactly). With r = d
+    # it is applied with a larger r to the
+    # larger distance, which lowers that curve most: the per-round crossing moves to larger p.
+    fixed = fss_frame(0).assign(rounds=5)
+    fixed["per_round_rate"] = [per_round(r, 5) for r in fixed["failure_rate"]]
+    family = family_of(fixed, "5")
+    whole, _ = crossing_thresholds(family, bootstrap=0, rng=rng())
+    per_round_records, _ = crossing_thresholds(family, bootstrap=0, rng=rng(), quantity="per_round_rate")
+    assert [r.threshold for r in per_round_records] == pytest.approx([r.threshold for r in whole], rel=1e-3)
+    assert all(r.quantity == "per_round_rate" for r in per_round_records)
+    # The synthetic model's per-round curves (r = d) of d = 5 and 7 cross between p = 0.0126 and 0.0129
+    # (computed from fss_rate), above its whole-experiment threshold P_TH = 0.01: sample a grid beyond.
+    growing = family_of(fss_frame(0, grid=np.linspace(0.009, 0.0135, 16), distances=(5, 7)))
+    whole, _ = crossing_thresholds(growing, bootstrap=0, rng=rng())
+    moved, _ = crossing_thresholds(growing, bootstrap=50, rng=rng(), quantity="per_round_rate")
+    assert [r.distances for r in moved] == [r.distances for r in whole] == [(5, 7)]
+    assert whole[0].threshold == pytest.approx(P_TH, rel=0.05)
+    assert 0.0124 <= moved[0].threshold <= 0.0131
+    assert all(m.low is not None and m.low <= m.threshold <= m.high for m in moved)
+
+
 def test_fss_recovers_threshold_and_nu() -> None:
     family = family_of(fss_frame(0))
     records, notes = fss_threshold(family, bootstrap=200, rng=rng())

@@ -6,6 +6,8 @@ The golden files in tests/data were written by the implementation that returned 
 wall-clock values (``wall_seconds``, ``decode_us_per_round``, ``keeps_up``) and the machine's path of the
 device file replaced by placeholders. Everything else must match byte for byte, key order included.
 If sampling changes on purpose (see DEVELOPERS.md, reproducibility contract), rewrite the forecast golden.
+``analysis_golden.json`` was rewritten once on purpose: Lambda fits now take, at each p, the distances
+over which the per-round rate falls, whatever the threshold estimate, and carry ``near_threshold``.
 """
 
 from __future__ import annotations

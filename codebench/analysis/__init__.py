@@ -70,6 +70,9 @@ def analyze_family(family: Family, *, targets: Sequence[float], bootstrap: int,
                      "thresholds need rounds growing with d).")
     pseudo, pseudo_notes = pseudo_thresholds(family, bootstrap=bootstrap, rng=rng)
     notes += pseudo_notes
+    # Drawn on the per-round figure; not thresholds (their notes would repeat the threshold notes). A
+    # child stream of its own, so the threshold intervals draw exactly the resamples they drew before.
+    per_round, _ = crossing_thresholds(family, bootstrap=bootstrap, rng=rng.spawn(1)[0], quantity="per_round_rate")
     chosen = best_threshold(thresholds)
     threshold = None if chosen is None else float(chosen.threshold)
     lambdas, pairs, lambda_notes = lambda_fits(family, threshold)
@@ -79,7 +82,7 @@ def analyze_family(family: Family, *, targets: Sequence[float], bootstrap: int,
     projections, projection_notes = project(family, lambdas, targets)
     notes += projection_notes
     return FamilyAnalysis(family.id, applies, tuple(thresholds), tuple(pseudo), tuple(lambdas), tuple(pairs),
-                          tuple(laws), tuple(projections), tuple(notes))
+                          tuple(laws), tuple(projections), tuple(notes), tuple(per_round))
 
 
 def analyze(

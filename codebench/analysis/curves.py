@@ -57,10 +57,17 @@ def at_distance(points: pd.DataFrame, distance: int) -> tuple[FloatArray, IntArr
 
 def shared_rates(points: pd.DataFrame, d1: int, d2: int) -> tuple[FloatArray, IntArray, IntArray, IntArray, IntArray]:
     """(p, n1, k1, n2, k2) at the values of p sampled at both distances."""
-    p1, n1, k1, _ = at_distance(points, d1)
-    p2, n2, k2, _ = at_distance(points, d2)
+    common, n1, k1, _, n2, k2, _ = shared_points(points, d1, d2)
+    return common, n1, k1, n2, k2
+
+
+def shared_points(points: pd.DataFrame, d1: int, d2: int) -> tuple[FloatArray, IntArray, IntArray, IntArray,
+                                                                   IntArray, IntArray, IntArray]:
+    """(p, n1, k1, rounds1, n2, k2, rounds2) at the values of p sampled at both distances."""
+    p1, n1, k1, r1 = at_distance(points, d1)
+    p2, n2, k2, r2 = at_distance(points, d2)
     common, i1, i2 = np.intersect1d(p1, p2, assume_unique=True, return_indices=True)
-    return common, n1[i1], k1[i1], n2[i2], k2[i2]
+    return common, n1[i1], k1[i1], r1[i1], n2[i2], k2[i2], r2[i2]
 
 
 def corrected(k: npt.NDArray[Any], n: npt.NDArray[Any]) -> FloatArray:
@@ -192,5 +199,5 @@ def pair_crossing(p: FloatArray, n1: IntArray, k1: IntArray, n2: IntArray, k2: I
 __all__ = [
     "MIN_VALID_FRACTION", "PERCENTILES", "SignChange", "SignChanges", "at_distance", "corrected",
     "family_points", "pair_crossing", "pair_g", "per_round_rates", "percentile_interval", "p_range",
-    "resample", "shared_rates", "sign_changes",
+    "resample", "shared_points", "shared_rates", "sign_changes",
 ]

@@ -28,7 +28,11 @@ PSEUDO_DEFINITION = "p at which the per-round logical error rate equals p"
 
 @dataclass(frozen=True)
 class CrossingThreshold:
-    """Where the failure-rate curves of two consecutive distances cross, with a bootstrap interval."""
+    """Where the curves of two consecutive distances cross, with a bootstrap interval.
+
+    ``quantity`` is ``failure_rate`` (the whole experiment: a threshold estimate) or
+    ``per_round_rate`` (the per-round curves, which cross elsewhere at finite d).
+    """
 
     family: FamilyId
     distances: tuple[int, int]
@@ -37,9 +41,9 @@ class CrossingThreshold:
     high: float | None
     bootstrap: int
     valid_bootstrap: int
+    quantity: str = "failure_rate"
 
     method: ClassVar[str] = "crossing"
-    quantity: ClassVar[str] = "failure_rate"
 
     def to_json(self) -> dict[str, Any]:
         return {
@@ -132,6 +136,8 @@ class LambdaEstimate:
     inflation: float
     ln_lambda_se: float
     log_cov: LogCov | None
+    #: p is at least half the threshold estimate, or the interval reaches Lambda <= 1 (weak suppression).
+    near_threshold: bool = False
 
     method: ClassVar[str] = "weighted_log_fit"
     quantity: ClassVar[str] = "per_round_rate"
@@ -142,6 +148,7 @@ class LambdaEstimate:
             "distances": list(self.distances), "C": self.C, "method": self.method, "quantity": self.quantity,
             "chi2": self.chi2, "dof": self.dof, "inflation": self.inflation, "ln_lambda_se": self.ln_lambda_se,
             "log_cov": None if self.log_cov is None else [list(row) for row in self.log_cov],
+            "near_threshold": self.near_threshold,
         }
 
 

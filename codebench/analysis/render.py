@@ -87,7 +87,8 @@ def analysis_table(result: AnalysisResult) -> str:
         ("95% high", lambda r: r.high)])
     lambdas: list[Column[LambdaEstimate]] = _family([
         ("p", lambda r: r.p), ("distances", lambda r: r.distances), ("Lambda", lambda r: r.lam),
-        ("95% low", lambda r: r.low), ("95% high", lambda r: r.high)])
+        ("95% low", lambda r: r.low), ("95% high", lambda r: r.high),
+        ("near threshold", lambda r: "yes" if r.near_threshold else "")])
     pairs: list[Column[LambdaPair]] = _family([
         ("p", lambda r: r.p), ("distances", lambda r: r.distances), ("Lambda", lambda r: r.lam),
         ("95% low", lambda r: r.low), ("95% high", lambda r: r.high)])

@@ -8,7 +8,12 @@ document of ``codebench analyze --format json``::
 
     {"thresholds": [...], "pseudo_thresholds": [...], "lambdas": [...],
      "lambda_pairs": [...], "scaling_laws": [...], "projections": [...],
-     "notes": [...], "settings": {"targets", "bootstrap", "seed", "confidence"}}
+     "notes": [...], "settings": {"targets", "bootstrap", "seed", "confidence"},
+     "per_round_crossings": [...]}
+
+``thresholds`` use whole-experiment failure rates; ``per_round_crossings``
+are where the per-round curves cross (not thresholds: drawn on the per-round
+figure only).
 """
 
 from __future__ import annotations
@@ -18,6 +23,7 @@ from typing import Any
 
 from codebench.analysis.families import FamilyId
 from codebench.analysis.records import (
+    CrossingThreshold,
     LambdaEstimate,
     LambdaPair,
     Projection,
@@ -62,6 +68,7 @@ class FamilyAnalysis:
     scaling_laws: tuple[ScalingLaw, ...]
     projections: tuple[Projection, ...]
     notes: tuple[str, ...]
+    per_round_crossings: tuple[CrossingThreshold, ...] = ()
 
     @property
     def best_threshold(self) -> ThresholdEstimate | None:
@@ -102,6 +109,10 @@ class AnalysisResult:
         return tuple(r for f in self.families for r in f.projections)
 
     @property
+    def per_round_crossings(self) -> tuple[CrossingThreshold, ...]:
+        return tuple(r for f in self.families for r in f.per_round_crossings)
+
+    @property
     def notes(self) -> tuple[str, ...]:
         """Every note: the general ones, then each family's."""
         return self.general_notes + tuple(n for f in self.families for n in f.notes)
@@ -121,6 +132,7 @@ class AnalysisResult:
             "projections": [r.to_json() for r in self.projections],
             "notes": list(self.notes),
             "settings": self.settings.to_json(),
+            "per_round_crossings": [r.to_json() for r in self.per_round_crossings],
         }
 
 

@@ -34,11 +34,20 @@ Points with no failures (k = 0) have no finite log and are left out of every
 fit (no upper-limit treatment), with a note; so are points with P >= 1/2,
 whose per-round rate is saturated.
 
-"Below threshold" means p < ``threshold`` when a threshold estimate is given.
-Without one, at each p the distances are taken in increasing order for as long
-as eps keeps decreasing (the first distance whose eps is not below the
-previous one ends the run), and a note says that no threshold estimate was
-available.
+Which distances a Lambda fit uses does not depend on any threshold estimate:
+at each p the distances are taken in increasing order for as long as the
+per-round rate eps keeps decreasing (the first distance whose eps is not
+below the previous one ends the run), so Lambda is given at every p where
+the rates fall with d. Thresholds are estimated from whole-experiment
+failure rates, which cross at other p than per-round rates do; mixing the
+two would drop a Lambda where the per-round rates still fall. A fit is
+flagged ``near_threshold`` when p is at least half the threshold estimate
+or its interval reaches Lambda <= 1: suppression there is weak and the
+fitted exponent may not hold at larger d.
+
+The scaling-law fit, a model of the region below threshold, keeps p <
+``threshold`` when a threshold estimate is given (the decreasing runs
+otherwise).
 """
 
 from __future__ import annotations
@@ -56,6 +65,8 @@ from codebench.stats import Z95
 
 FloatArray = npt.NDArray[np.float64]
 
+#: A Lambda fit at p >= this fraction of the threshold estimate is flagged as near threshold.
+NEAR_THRESHOLD_FRACTION = 0.5
 #: Smallest number of points, distances and rates the scaling-law fit needs.
 SCALING_MIN_POINTS = 3
 SCALING_MIN_DISTANCES = 2
@@ -295,15 +306,15 @@ def _all_finite(*values: float) -> bool:
 
 
 def lambda_fits(family: Family, threshold: float | None) -> tuple[list[LambdaEstimate], list[LambdaPair], list[str]]:
-    """Lambda at each p with at least two usable distances below threshold.
+    """Lambda at each p where the per-round rates of at least two distances fall with d.
 
     Parameters
     ----------
     family : Family
         One curve family.
     threshold : float or None
-        Threshold estimate; ``None`` selects the distances over which eps
-        decreases at each p (see the module docstring).
+        Threshold estimate, used only to flag fits near it (see the module
+        docstring); the distances are those over which eps decreases at each p.
 
     Returns
     -------
@@ -318,10 +329,7 @@ def lambda_fits(family: Family, threshold: float | None) -> tuple[list[LambdaEst
     """
     prefix = f"{family.describe()}: "
     points, notes = usable_points(family)
-    if threshold is None:
-        notes.append(prefix + "no threshold estimate available; at each p, using the distances "
-                     "(from the smallest) over which eps decreases with d as below threshold.")
-    selected = points.take(below_threshold(points, threshold))
+    selected = points.take(below_threshold(points, None))
     fits: list[LambdaEstimate] = []
     pairs: list[LambdaPair] = []
     missing: list[str] = []
@@ -335,9 +343,10 @@ def lambda_fits(family: Family, threshold: float | None) -> tuple[list[LambdaEst
         y = np.log(at_p.eps)
         fit = fit_lambda(at_p.distance, y, at_p.var_log)
         if _all_finite(fit.lam, fit.low, fit.high, fit.C, fit.chi2):
+            near = fit.low <= 1.0 or (threshold is not None and p >= NEAR_THRESHOLD_FRACTION * threshold)
             fits.append(LambdaEstimate(
                 family.id, float(p), fit.lam, fit.low, fit.high, tuple(fit.distances), fit.C, fit.chi2, fit.dof,
-                fit.inflation, fit.ln_lambda_se, tuple(tuple(row) for row in fit.log_cov)))
+                fit.inflation, fit.ln_lambda_se, tuple(tuple(row) for row in fit.log_cov), bool(near)))
         else:
             notes.append(prefix + f"Lambda fit at p={float(p):.6g} is not finite; left out.")
         for i in range(len(at_p) - 1):
@@ -347,9 +356,8 @@ def lambda_fits(family: Family, threshold: float | None) -> tuple[list[LambdaEst
             if _all_finite(lam, low, high):
                 pairs.append(LambdaPair(family.id, float(p), (d1, d2), lam, low, high))
     if missing:
-        where = "below threshold" if threshold is None else f"below the threshold {threshold:.6g}"
         notes.append(prefix + "no Lambda fit at p = " + ", ".join(missing)
-                     + f" (fewer than 2 distances {where} with failures).")
+                     + " (the per-round rate does not fall from the smallest distance with failures to the next).")
     if points.p.size == 0:
         notes.append(prefix + "no Lambda fit: no point with failures.")
     return fits, pairs, notes

@@ -1,13 +1,15 @@
 """Figures of a sweep folder: PNG (150 dpi) and SVG files in ``DIR/figures``.
 
-Three kinds, drawn from the results table and the :func:`~codebench.analysis.analyze`
-records, one module each:
+Four kinds, drawn from the results table and the :func:`~codebench.analysis.analyze`
+records:
 
 - ``per_round_vs_p__<family>`` (:mod:`.per_round`): logical error per round
-  against the rate, one curve per distance with its 95% band, the threshold
-  estimate (finite-size scaling if there is one, else a crossing) with its
-  interval and, where p is a physical error probability, the line
-  logical = physical and the pseudo-thresholds on it;
+  against the rate, one curve per distance with its 95% band, where the
+  per-round curves cross and, where p is a physical error probability, the
+  line logical = physical and the pseudo-thresholds on it;
+- ``failure_vs_p__<family>`` (:mod:`.per_round`): the whole experiment's
+  failure probability, with the threshold estimate (finite-size scaling if
+  there is one, else a crossing) and its interval: only here;
 - ``lambda_vs_d__<family>__p<p>`` (:mod:`.suppression`): logical error per
   round against distance at one rate, the fit eps_d = C / Lambda^((d+1)/2)
   extended to the distance the smallest target needs, and the targets;

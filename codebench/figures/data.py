@@ -14,7 +14,11 @@ from codebench.analysis.families import Family
 from codebench.figures.style import finite
 
 #: The record lists of an analysis.
-SECTIONS = ("thresholds", "pseudo_thresholds", "lambdas", "lambda_pairs", "scaling_laws", "projections")
+SECTIONS = ("thresholds", "pseudo_thresholds", "lambdas", "lambda_pairs", "scaling_laws", "projections",
+            "per_round_crossings")
+#: The columns a curve plots: per-round rate, or the failure probability of the whole experiment.
+QUANTITY_COLUMNS = {"per_round": ("per_round_rate", "per_round_low", "per_round_high"),
+                    "whole": ("failure_rate", "failure_rate_low", "failure_rate_high")}
 
 
 def _plain(value: Any) -> Any:
@@ -114,13 +118,14 @@ class Curve:
     failures: np.ndarray
 
 
-def curves(family: Family) -> list[Curve]:
-    """The curves of ``family`` that have at least one finite rate."""
+def curves(family: Family, quantity: str = "per_round") -> list[Curve]:
+    """The curves of ``family`` that have at least one finite rate (``quantity``: a key of QUANTITY_COLUMNS)."""
+    rate_column, low_column, high_column = QUANTITY_COLUMNS[quantity]
     out = []
     for distance in family.distances:
         part = family.at_distance(distance)
         part = part[part["shots"] > 0]
-        rate = part["per_round_rate"].to_numpy(dtype=float)
+        rate = part[rate_column].to_numpy(dtype=float)
         keep = np.isfinite(rate)
         if not keep.any():
             continue
@@ -128,8 +133,8 @@ def curves(family: Family) -> list[Curve]:
             distance,
             part["p"].to_numpy(dtype=float)[keep],
             rate[keep],
-            part["per_round_low"].to_numpy(dtype=float)[keep],
-            part["per_round_high"].to_numpy(dtype=float)[keep],
+            part[low_column].to_numpy(dtype=float)[keep],
+            part[high_column].to_numpy(dtype=float)[keep],
             part["failures"].to_numpy(dtype=float)[keep],
         ))
     return out

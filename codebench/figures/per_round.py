@@ -1,9 +1,14 @@
-"""``per_round_vs_p__<family>``: logical error per round against the rate, one curve per distance.
+"""Logical error against the rate, one curve per distance, each with its 95% band: two figures.
 
-Each curve has its 95% band; the threshold estimate (finite-size scaling if
-there is one, else a crossing) is drawn with its interval. Where ``p`` is a
-physical error probability, the line logical = physical and the
-pseudo-thresholds on it are drawn too.
+* ``per_round_vs_p__<family>``: the error per round. Drawn on it: where the
+  per-round curves of the largest distances cross (if they do in the sampled
+  range), and, where ``p`` is a physical error probability, the line
+  logical = physical and the pseudo-thresholds on it.
+* ``failure_vs_p__<family>``: the failure probability of the whole
+  experiment, for families whose thresholds were estimated, with the
+  threshold estimate (finite-size scaling if there is one, else a crossing)
+  and its interval. The threshold comes from these curves and is drawn only
+  here: per-round curves cross elsewhere at finite d.
 """
 
 from __future__ import annotations
@@ -17,6 +22,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.ticker import MaxNLocator
 
+from codebench.analysis import threshold_applies
 from codebench.analysis.families import Family
 from codebench.figures.canvas import FigurePlan, rate_axes, titles, zero_marker
 from codebench.figures.data import (
@@ -57,16 +63,18 @@ from codebench.figures.style import (
 )
 
 KIND = "per_round_vs_p"
+WHOLE_KIND = "failure_vs_p"
 
 
 @dataclass(frozen=True)
 class ThresholdMark:
-    """The threshold estimate as drawn: value, 95% interval, and how it was found (short)."""
+    """A crossing as drawn: value, 95% interval, how it was found (short), and what it is."""
 
     value: float
     low: float | None
     high: float | None
     method: str
+    name: str = "threshold"
 
 
 @dataclass(frozen=True)
@@ -82,10 +90,11 @@ class PerRoundInputs:
     #: (pseudo-threshold, distance) of every finite estimate.
     pseudo: tuple[tuple[float, int], ...]
     threshold: ThresholdMark | None
+    y_label: str = "logical error per round"
 
 
 def plan(family: Family, analysis: dict[str, Any]) -> FigurePlan[PerRoundInputs] | None:
-    """The figure of ``family``, or ``None`` when it has no rate to show."""
+    """The per-round figure of ``family``, or ``None`` when it has no rate to show."""
     drawn = curves(family)
     limits = y_range(drawn)
     if not drawn or limits is None:
@@ -95,18 +104,42 @@ def plan(family: Family, analysis: dict[str, Any]) -> FigurePlan[PerRoundInputs]
     pseudo = tuple((float(r["pseudo_threshold"]), int(r.get("distance") or 0))
                    for r in family_records(analysis, "pseudo_thresholds", family)
                    if finite(r.get("pseudo_threshold")) is not None) if physical else ()
+    record = chosen_threshold(family_records(analysis, "per_round_crossings", family))
+    crossing = None if record is None else ThresholdMark(
+        float(record["threshold"]), finite(record.get("low")), finite(record.get("high")), method_name(record),
+        "per-round crossing")
+    title = family_title(family)
+    caption = f"Logical error per round against {rate_noun(rate, article=True)} for {title}; bands are 95% intervals."
+    if record is not None:
+        caption += (f" The per-round curves of d = {'/'.join(str(d) for d in record.get('distances') or [])} cross"
+                    f" at {num(record['threshold'])} [{num(record.get('low'))}, {num(record.get('high'))}];"
+                    " this is not the threshold, which is estimated from the whole experiment's failure"
+                    " probability (its own figure).")
+    inputs = PerRoundInputs(tuple(drawn), limits, f"Logical error per round vs {rate_noun(rate)}", title, rate.axis_label,
+                            physical, pseudo, crossing)
+    return FigurePlan(f"{KIND}__{family_slug(family)}", KIND, title, caption, inputs, draw)
+
+
+def whole_plan(family: Family, analysis: dict[str, Any]) -> FigurePlan[PerRoundInputs] | None:
+    """The whole-experiment figure of ``family`` with its threshold, for families with threshold estimates."""
+    drawn = curves(family, "whole")
+    limits = y_range(drawn)
+    if not drawn or limits is None or not threshold_applies(family):
+        return None
+    rate = rate_meaning(family.noise)
     record = chosen_threshold(family_records(analysis, "thresholds", family))
     threshold = None if record is None else ThresholdMark(
         float(record["threshold"]), finite(record.get("low")), finite(record.get("high")), method_name(record))
     title = family_title(family)
-    caption = f"Logical error per round against {rate_noun(rate, article=True)} for {title}; bands are 95% intervals."
-    if record is not None:
-        caption += (f" Threshold estimate ({method_name(record, short=False)}): {num(record['threshold'])}"
-                    f" [{num(record.get('low'))}, {num(record.get('high'))}], fitted to the failure"
-                    " probability of the whole experiment.")
-    inputs = PerRoundInputs(tuple(drawn), limits, f"Logical error per round vs {rate_noun(rate)}", title, rate.axis_label,
-                            physical, pseudo, threshold)
-    return FigurePlan(f"{KIND}__{family_slug(family)}", KIND, title, caption, inputs, draw)
+    caption = (f"Probability that the whole memory experiment fails against {rate_noun(rate, article=True)} for "
+               f"{title}; bands are 95% intervals.")
+    caption += (" No threshold estimate (see the notes)." if record is None else
+                f" Threshold estimate ({method_name(record, short=False)}): {num(record['threshold'])}"
+                f" [{num(record.get('low'))}, {num(record.get('high'))}].")
+    inputs = PerRoundInputs(tuple(drawn), limits, f"Logical failure of the whole experiment vs {rate_noun(rate)}",
+                            title, rate.axis_label, False, (), threshold,
+                            "logical failure probability (whole experiment)")
+    return FigurePlan(f"{WHOLE_KIND}__{family_slug(family)}", WHOLE_KIND, title, caption, inputs, draw)
 
 
 def draw(inputs: PerRoundInputs) -> Figure:
@@ -156,7 +189,7 @@ def draw(inputs: PerRoundInputs) -> Figure:
         extra.append((Line2D([], [], linestyle="none", marker="v", markersize=7, markerfacecolor="white",
                              markeredgecolor=MUTED, markeredgewidth=1.5), "0 failures: 95% upper end"))
     ax.set_xlabel(inputs.x_label)
-    ax.set_ylabel("logical error per round")
+    ax.set_ylabel(inputs.y_label)
     titles(ax, inputs.headline, inputs.subline)
     handles, labels = ax.get_legend_handles_labels()
     place_legends(ax, [LegendGroup(handles, labels), LegendGroup([h for h, _ in extra], [t for _, t in extra])],
@@ -197,7 +230,7 @@ def _draw_threshold(ax: Axes, mark: ThresholdMark, xlim: tuple[float, float]
     if low is not None and high is not None and high > xlim[0] and low < xlim[1]:
         parts.append(ax.axvspan(max(low, xlim[0]), min(high, xlim[1]), color=THRESHOLD_SHADE, alpha=0.22,
                                 linewidth=0, zorder=0))
-    label = f"threshold {num(value)} ({mark.method})"
+    label = f"{mark.name} {num(value)} ({mark.method})"
     if xlim[0] <= value <= xlim[1]:
         parts.append(ax.axvline(value, color=THRESHOLD_INK, linewidth=1.6, zorder=2))
         x_frac = float(ax.transAxes.inverted().transform(ax.transData.transform((value, 1.0)))[0])
@@ -206,10 +239,10 @@ def _draw_threshold(ax: Axes, mark: ThresholdMark, xlim: tuple[float, float]
                        ha="left" if right else "right", va="bottom", fontsize=11, color=THRESHOLD_INK, zorder=6,
                        bbox={"boxstyle": "square,pad=0.2", "facecolor": PANEL, "edgecolor": "none", "alpha": 0.9})
         column = np.column_stack([np.full(40, x_frac), np.linspace(0, 1, 40)])
-        return [(tuple(reversed(parts)), "threshold, 95% interval")], [text], [(column, ALONG_GUIDE * 5)]
+        return [(tuple(reversed(parts)), f"{mark.name}, 95% interval")], [text], [(column, ALONG_GUIDE * 5)]
     side = ">" if value > xlim[1] else "<"
     handle = Line2D([], [], color=THRESHOLD_INK, linewidth=1.6)
     entries = [(handle, f"{label} {side} sampled range")]
     if parts:
-        entries.append((parts[0], "threshold 95% interval"))
+        entries.append((parts[0], f"{mark.name} 95% interval"))
     return entries, [], []

@@ -18,7 +18,7 @@ from codebench.files import make_folder
 
 FIGURES_DIR = "figures"
 #: File-name prefixes this package owns in ``DIR/figures`` (stale files with them are removed).
-PREFIXES = tuple(f"{kind}__" for kind in (per_round.KIND, suppression.KIND, decoders.KIND))
+PREFIXES = tuple(f"{kind}__" for kind in (per_round.KIND, per_round.WHOLE_KIND, suppression.KIND, decoders.KIND))
 _NEEDED = {"code", "basis", "noise", "decoder", "distance", "rounds", "p", "shots"}
 
 
@@ -39,9 +39,10 @@ def plan_figures(frame: pd.DataFrame, analysis: Any) -> list[FigurePlan[Any]]:
     families = group_families(frame) if has_rows else []
     plans: list[FigurePlan[Any]] = []
     for family in families:
-        item = per_round.plan(family, records)
-        if item is not None:
-            plans.append(item)
+        for make in (per_round.plan, per_round.whole_plan):
+            item = make(family, records)
+            if item is not None:
+                plans.append(item)
     for family in families:
         plans += suppression.plans(family, records)
     for group in decoders.groups(families):

@@ -183,12 +183,16 @@ def fit_tables(analysis: dict[str, Any]) -> list[Table]:
 
     lambdas = Table(
         "lambda", "Error suppression \u039b",
-        "Fit of eps_d = C / \u039b^((d+1)/2) to the per-round rates at each p: \u039b is the factor gained "
-        "per step of 2 in distance.",
-        ["family", "p", "distances", "\u039b [95%]", "C"], numeric={1, 3, 4}, empty="no \u039b fit (see the notes)")
+        "Fit of eps_d = C / \u039b^((d+1)/2) to the per-round rates at each p, over the distances whose "
+        "per-round rates fall with d (not chosen by the threshold, which comes from whole-experiment rates): "
+        "\u039b is the factor gained per step of 2 in distance. Near threshold: p is at least half the "
+        "threshold estimate, or the interval reaches \u039b \u2264 1; suppression there is weak.",
+        ["family", "p", "distances", "\u039b [95%]", "C", "near threshold"], numeric={1, 3, 4},
+        empty="no \u039b fit (see the notes)")
     for r in records("lambdas"):
         lambdas.rows.append([family_text(r), g(r.get("p")), list_text(r.get("distances")),
-                             with_interval(r.get("lambda"), r.get("low"), r.get("high")), g(r.get("C"))])
+                             with_interval(r.get("lambda"), r.get("low"), r.get("high")), g(r.get("C")),
+                             "yes" if r.get("near_threshold") else ""])
     tables.append(lambdas)
 
     pairs = Table(

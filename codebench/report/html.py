@@ -135,8 +135,10 @@ def _png_link(path: Path) -> str:
 
 _FIGURE_KINDS = (
     ("per_round_vs_p", "Logical error per round against p",
-     "One curve per distance; the threshold estimate and the line where the logical error equals the "
-     "physical one."),
+     "One curve per distance; where the per-round curves cross, the pseudo-thresholds and the line where "
+     "the logical error equals the physical one."),
+    ("failure_vs_p", "Failure of the whole experiment against p",
+     "One curve per distance; the threshold estimate, from these curves, with its interval."),
     ("decoders_vs_p", "Decoders compared", "Colour: distance; line style and marker: decoder."),
     ("lambda_vs_d", "Suppression with distance",
      "At each p with a \u039b fit: the points, the fit, the targets and the distance each needs."),
