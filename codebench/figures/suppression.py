@@ -16,7 +16,7 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
 from codebench.analysis.families import Family
-from codebench.figures.canvas import FigurePlan, new_figure, titles
+from codebench.figures.canvas import FigurePlan, log_axis, new_figure, titles
 from codebench.figures.data import family_records
 from codebench.figures.labels import family_slug, family_title, rate_meaning, safe
 from codebench.figures.legend import (
@@ -103,7 +103,7 @@ def draw(inputs: LambdaInputs) -> Figure:
     lam, scale = inputs.lam, inputs.scale
     positive = [float(v) for v in np.concatenate([rate, high]) if v > 0]
     fig, ax = new_figure()
-    ax.set_yscale("log")
+    log_axis(ax, "y")
     for d, eps, lo, hi in zip(distances, rate, low, high):
         colour = distance_colour(int(d))
         if eps > 0:

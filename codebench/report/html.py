@@ -74,7 +74,7 @@ figcaption .file { color: #8a909b; font-size: 12px; overflow-wrap: anywhere; }
 .split { display: grid; grid-template-columns: minmax(0, 1fr) minmax(0, 1fr); gap: 24px; }
 .split pre { margin: 0; max-height: 560px; overflow: auto; }
 h3.first { margin-top: 0; }
-@media (max-width: 900px) { .split { grid-template-columns: 1fr; } }
+@media (max-width: 900px) { .split { grid-template-columns: minmax(0, 1fr); } }
 .caution { border-left: 5px solid var(--warn); background: var(--warn-bg); border-radius: 4px;
            padding: 10px 14px; margin: 12px 0; }
 .caution h3 { margin: 0 0 4px; color: #6d4100; }
