@@ -7,10 +7,11 @@ traceback), 1 anything else, 130 interrupted (finished batches are kept).
 from __future__ import annotations
 
 import argparse
+import contextlib
 import os
 import sys
 from pathlib import Path
-from typing import TYPE_CHECKING, Callable, NoReturn, Sequence
+from typing import TYPE_CHECKING, Callable, Iterator, NoReturn, Sequence
 
 from codebench.build import noisy_circuit
 from codebench.errors import (
@@ -92,6 +93,9 @@ def cmd_sweep(args: argparse.Namespace) -> int:
 def cmd_export(args: argparse.Namespace) -> int:
     from codebench.api import export_csv
 
+    if args.csv is None and Path(args.dir).is_dir() and not os.access(args.dir, os.W_OK):
+        raise ConfigError(f"the results folder '{args.dir}' is read-only; give --csv FILE to write the table "
+                          "elsewhere.")
     try:
         path = export_csv(args.dir, args.csv, args.interval)
     except OutputError as exc:
@@ -132,6 +136,18 @@ def _output_folder(args: argparse.Namespace, what: str) -> Path:
     return folder
 
 
+@contextlib.contextmanager
+def _to_option(args: argparse.Namespace) -> Iterator[None]:
+    """A ``--to`` folder that cannot be written is a bad argument (exit 2), named as such."""
+    try:
+        yield
+    except OutputError as exc:
+        if args.to is None:
+            raise
+        reason = str(exc).rstrip(".")
+        raise ConfigError(not_allowed("--to", args.to, f"a folder codebench can write ({reason})")) from None
+
+
 def cmd_analyze(args: argparse.Namespace) -> int:
     import json
 
@@ -150,7 +166,8 @@ def cmd_figures(args: argparse.Namespace) -> int:
 
     frame, result = _analysis(args)
     target = _output_folder(args, "figures")
-    paths = write_figures(target, frame, result)
+    with _to_option(args):
+        paths = write_figures(target, frame, result)
     print(f"wrote {len(paths)} files into {target / 'figures'}")
     return EXIT_OK
 
@@ -159,7 +176,9 @@ def cmd_report(args: argparse.Namespace) -> int:
     from codebench.report import write_report
 
     frame, result = _analysis(args)
-    path = write_report(Path(args.dir), frame, result, to=_output_folder(args, "report"))
+    target = _output_folder(args, "report")
+    with _to_option(args):
+        path = write_report(Path(args.dir), frame, result, to=target)
     print(f"wrote {path} and {path.parent / 'summary.md'}")
     return EXIT_OK
 

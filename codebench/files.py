@@ -35,6 +35,7 @@ def write_atomically(path: str | Path, write: Callable[[IO[Any]], object], binar
     target = Path(path)
     if target.is_dir():
         raise OutputError(f"cannot write '{target}': it is a folder; give a file path.")
+    _refuse_file_in_the_way(target)
     tmp: str | None = None
     try:
         target.parent.mkdir(parents=True, exist_ok=True)
@@ -53,9 +54,21 @@ def write_atomically(path: str | Path, write: Callable[[IO[Any]], object], binar
     return target
 
 
+def _refuse_file_in_the_way(path: Path) -> None:
+    """A file where ``path`` needs a folder gets its own message (the system says "File exists")."""
+    for ancestor in path.parents:
+        if ancestor.exists():
+            if not ancestor.is_dir():
+                raise OutputError(f"cannot write '{path}': '{ancestor}' is a file, not a folder.")
+            return
+
+
 def make_folder(path: str | Path) -> Path:
     """Create ``path`` (and its parents) or raise the one-line :class:`OutputError` naming it."""
     folder = Path(path)
+    if folder.exists() and not folder.is_dir():
+        raise OutputError(f"cannot create the folder '{folder}': it is a file.")
+    _refuse_file_in_the_way(folder)
     try:
         folder.mkdir(parents=True, exist_ok=True)
     except OSError as exc:

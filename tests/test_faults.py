@@ -364,6 +364,14 @@ def test_a_read_only_store_is_analysed_and_exported_and_refused_for_a_sweep(tmp_
             assert len(asked.stderr.strip().splitlines()) == 1
             elsewhere = run_limited([verb, folder, "--bootstrap", 50, "--to", tmp_path / "review"], None)
             assert elsewhere.returncode == 0, elsewhere.stderr
+        in_place = run_limited(["export", folder], None)
+        assert in_place.returncode == 2 and "read-only" in in_place.stderr and "--csv" in in_place.stderr
+        (tmp_path / "a_file").write_text("")
+        for verb in ("figures", "report"):
+            blocked = run_limited([verb, folder, "--bootstrap", 50, "--to", tmp_path / "a_file"], None)
+            assert blocked.returncode == 2 and "--to" in blocked.stderr and "is a file" in blocked.stderr
+        blocked = run_limited(["export", folder, "--csv", tmp_path / "a_file" / "x.csv"], None)
+        assert blocked.returncode == 2 and "'" + str(tmp_path / "a_file") + "' is a file, not a folder" in blocked.stderr
         assert (tmp_path / "review" / "report" / "index.html").is_file()
         assert any((tmp_path / "review" / "figures").glob("*.png"))
         assert {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()} == before

@@ -190,6 +190,21 @@ def test_cautions_list_points_with_few_failures(sweep: tuple[Path, pd.DataFrame,
     assert "every point met its stopping rule" in html_text
 
 
+def test_saturated_per_round_rates_are_cautioned() -> None:
+    # With r rounds the per-round rate is (1 - (1 - 2P)^(1/r)) / 2 (see the README): at P = 0.484 and
+    # r = 10,000 it is 1.7e-4 although each round fails far more often; the caution must name the point.
+    from codebench.report.cautions import cautions
+    from codebench.stats import per_round
+
+    row = {"study": "s", "code": "rotated_surface", "distance": 3, "rounds": 10_000, "basis": "Z", "noise": "si1000",
+           "p": 0.002, "decoder": "mwpm", "shots": 1000, "failures": 484, "failure_rate": 0.484,
+           "per_round_rate": per_round(0.484, 10_000), "per_round_low": 1e-4, "per_round_high": 0.5}
+    found = {c.title: c for c in cautions(pd.DataFrame([row, {**row, "failures": 10, "failure_rate": 0.01}]), {}, [])}
+    saturated = found["Per-round rates near saturation"]
+    assert not saturated.ok and "1 point(s) fail in more than 40%" in saturated.text
+    assert per_round(0.484, 10_000) == pytest.approx(1.7e-4, rel=0.05)
+
+
 def test_single_distance_gives_a_report_that_says_the_fit_is_missing(
     sweep: tuple[Path, pd.DataFrame, AnalysisResult], tmp_path: Path
 ) -> None:

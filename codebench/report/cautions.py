@@ -25,6 +25,8 @@ from codebench.report.run import incomplete
 FEW_FAILURES = 10
 #: Distances up to this are "small" for the finite-size caution on crossings.
 SMALL_DISTANCE = 5
+#: Points whose whole-experiment failure probability exceeds this have a near-saturated per-round rate.
+SATURATION = 0.4
 
 
 def cautions(frame: pd.DataFrame, analysis: dict[str, Any], problems: list[str]) -> list[Caution]:
@@ -33,6 +35,7 @@ def cautions(frame: pd.DataFrame, analysis: dict[str, Any], problems: list[str])
     out.append(_drift_caution(analysis))
     out.append(_extrapolation_caution(analysis))
     out.append(_few_failures_caution(frame))
+    out.append(_saturation_caution(frame))
     stopped = incomplete(frame)
     if len(stopped):
         table = points_table("incomplete-points", stopped)
@@ -114,6 +117,20 @@ def _few_failures_caution(frame: pd.DataFrame) -> Caution:
             "several (at 0 failures only an upper end is known), and the fits weigh them little or leave them "
             "out (0 failures). Raise the shot budget for these points if they matter.")
     return Caution(f"Points with fewer than {FEW_FAILURES} failures", text, points_table("few-failures", few))
+
+
+def _saturation_caution(frame: pd.DataFrame) -> Caution:
+    title = "Per-round rates near saturation"
+    if frame.empty or "failure_rate" not in frame.columns:
+        return Caution(title, "No points.", ok=True)
+    near = frame[pd.to_numeric(frame["failure_rate"], errors="coerce").fillna(0) > SATURATION]
+    if near.empty:
+        return Caution(title, f"None: every point fails in at most {SATURATION:.0%} of its experiments.", ok=True)
+    text = (f"{len(near)} point(s) fail in more than {SATURATION:.0%} of their experiments. The per-round rate "
+            "(1 - (1 - 2P)^(1/r)) / 2 divides by a vanishing 1 - 2P there: a small count fluctuation moves it "
+            "by orders of magnitude and its interval reaches 1/2, so its point value can be far from the truth "
+            "(typically too low). Use fewer rounds or a lower rate for these points.")
+    return Caution(title, text, points_table("saturated", near))
 
 
 def points_table(key: str, rows: pd.DataFrame) -> Table:
