@@ -356,11 +356,12 @@ def build_parser() -> argparse.ArgumentParser:
                                       "mwpm otherwise)")
     fc.add_argument("--target", type=_rates, action="append",
                     help="target per-round rate; repeatable or comma-separated (default: 1e-6,1e-9,1e-12)")
-    fc.add_argument("--budget-seconds", default=60.0,
+    budget = fc.add_mutually_exclusive_group()
+    budget.add_argument("--budget-seconds", default=60.0,
                     type=_positive_number("--budget-seconds", "a positive number of seconds up to 1e+06", 1e6),
                     help="budget, turned into counted work at a fixed rate; sampling stops at 3x this "
                          "whatever the plan (default: 60)")
-    fc.add_argument("--work", type=_positive_number("--work", "a positive amount of counted work "
+    budget.add_argument("--work", type=_positive_number("--work", "a positive amount of counted work "
                                                     "(shots x detectors, e.g. 5e9) up to 1e+14", 1e14),
                     help="budget as counted work (shots x detectors) instead: no time limit, the same plan "
                          "on any machine")

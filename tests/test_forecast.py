@@ -33,7 +33,7 @@ from typing import Any
 import pytest
 
 from codebench.cli import main
-from codebench.errors import ConfigError, DeviceFileError
+from codebench.errors import ConfigError, DeviceFileError, RunFault
 from codebench.forecast import (
     CAUTIONS,
     forecast,
@@ -445,13 +445,29 @@ def test_improve_noise_reuses_the_f_of_w_table(tmp_path: Path) -> None:
 
 def test_hard_time_limit_is_reported(monkeypatch: pytest.MonkeyPatch) -> None:
     """Past the hard limit sampling stops, and the forecast names what was cut short (no silent method change)."""
-    import codebench.forecast.plan as plan
+    from codebench.forecast.sampling import Sampler
 
-    monkeypatch.setattr(plan, "HARD_LIMIT", 0.0)
+    pilot = Sampler.run
+
+    def run_then_expire(self: Sampler, *args: Any, **kwargs: Any) -> Any:
+        out = pilot(self, *args, **kwargs)
+        self.budget.deadline = 0.0  # the hard limit falls right after the pilot
+        return out
+
+    monkeypatch.setattr(Sampler, "run", run_then_expire)
     result = forecast(IMPROVED, distances=(3, 5), budget_seconds=5.0, workers=2)
     assert result.budget.hard_limit_reached
     assert all(any("cut short" in f for f in r.flags) for r in result.distances)
+    assert all(r.shots > 0 for r in result.distances)  # the pilot's counts are kept
     assert any("hard time limit" in n for n in result.notes)
+
+
+def test_a_forecast_that_sampled_nothing_says_so(monkeypatch: pytest.MonkeyPatch) -> None:
+    import codebench.forecast.plan as plan
+
+    monkeypatch.setattr(plan, "HARD_LIMIT", 0.0)
+    with pytest.raises(RunFault, match="before any distance was sampled.*--budget-seconds"):
+        forecast(IMPROVED, distances=(3, 5), budget_seconds=5.0, workers=2)
 
 
 def test_near_threshold_targets_are_not_projected_far() -> None:

@@ -255,6 +255,7 @@ class BeliefOSD(BeliefDecoder):
     """
 
     name = "bposd"
+    relative_cost = 2300.0
     option_specs = {
         **_BP_OPTIONS,
         "osd_method": OptionSpec(
@@ -285,6 +286,7 @@ class BeliefLSD(BeliefDecoder):
     """
 
     name = "bplsd"
+    relative_cost = 400.0
     option_specs = {
         **_BP_OPTIONS,
         "lsd_method": OptionSpec(

@@ -467,6 +467,7 @@ class FlagMatching(Decoder):
     """Matching conditioned on each shot's raised flags (see the module docstring)."""
 
     name = "flag_matching"
+    relative_cost = 250.0  # 16 at d = 3: most shots at d >= 5 raise a flag pattern of their own
     wants_decomposed: ClassVar[bool] = True
     #: Raised-flag patterns that keep their own compiled graph (least recently used dropped first).
     cache_size: ClassVar[int] = 256

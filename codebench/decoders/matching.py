@@ -55,4 +55,5 @@ class CorrelatedMatching(Matching):
     """MWPM with pymatching's correlated re-weighting."""
 
     name = "mwpm_correlated"
+    relative_cost = 2.7
     correlated = True

@@ -9,7 +9,9 @@ start-up is not work and is never charged to a point.
 
 ``--budget-seconds`` is turned into work by the fixed ``WORK_PER_SECOND``
 (measured once on a 2-core reference machine with ``scripts/bench_rare_events.py``;
-the same constant everywhere, deliberately not re-measured per run), and the
+the same constant everywhere, deliberately not re-measured per run), divided
+by the decoder's declared ``relative_cost`` (its decoding time per
+detector-shot against matching, also measured once), and the
 time that work should take on this machine is printed before sampling. The
 seconds also set a hard stop at ``HARD_LIMIT`` times the budget: sampling ends
 there whatever the plan, the counts so far are kept, and the forecast names
@@ -38,13 +40,17 @@ class WorkBudget:
     deadline: float | None = None
     spent: float = 0.0
     cut_short: list[str] = field(default_factory=list)
+    #: Counted work per second on the reference machine with this forecast's decoder.
+    rate: float = WORK_PER_SECOND
 
     @classmethod
-    def from_request(cls, seconds: float, work: float | None) -> WorkBudget:
-        """``work`` when given (no hard stop: tests and reproducible runs), else seconds x WORK_PER_SECOND."""
+    def from_request(cls, seconds: float, work: float | None, relative_cost: float = 1.0) -> WorkBudget:
+        """``work`` when given (no hard stop: tests and reproducible runs), else seconds x the rate of the
+        decoder (WORK_PER_SECOND / its relative cost)."""
+        rate = WORK_PER_SECOND / max(relative_cost, 1e-9)
         if work is not None:
-            return cls(float(work))
-        return cls(float(seconds) * WORK_PER_SECOND, deadline=time.monotonic() + HARD_LIMIT * float(seconds))
+            return cls(float(work), rate=rate)
+        return cls(float(seconds) * rate, deadline=time.monotonic() + HARD_LIMIT * float(seconds), rate=rate)
 
     def left(self) -> float:
         return max(0.0, self.total - self.spent)
@@ -61,4 +67,4 @@ class WorkBudget:
 
     def estimated_seconds(self, workers: int) -> float:
         """Wall time the whole budget would take on ``workers`` workers at the reference rate."""
-        return self.total / (WORK_PER_SECOND * max(1, workers) / 2.0)
+        return self.total / (self.rate * max(1, workers) / 2.0)

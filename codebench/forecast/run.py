@@ -44,9 +44,11 @@ from pathlib import Path
 from typing import Callable, Mapping, Sequence
 
 from codebench.codes import CODE_FAMILIES
+from codebench.decoders import get_decoder
 from codebench.engine.executors import Executor, make_executor
 from codebench.engine.local import leave_if_a_worker_imports_main
-from codebench.errors import ConfigError, not_allowed
+from codebench.errors import ConfigError, OutputError, RunFault, not_allowed
+from codebench.files import make_folder
 from codebench.forecast import strata as strata_plan
 from codebench.forecast.breakeven import break_even
 from codebench.forecast.details import MethodDetails
@@ -59,7 +61,7 @@ from codebench.forecast.estimators import (
     targets,
 )
 from codebench.forecast.extrapolation import sample_raised, scale_cap
-from codebench.forecast.plan import WorkBudget
+from codebench.forecast.plan import HARD_LIMIT, WorkBudget
 from codebench.forecast.request import (
     DEFAULT_DISTANCES,
     DEFAULT_SEED,
@@ -170,10 +172,17 @@ def run_forecast(request: ForecastRequest) -> ForecastResult:
         tmp = tempfile.TemporaryDirectory(prefix="codebench-forecast-")
         store = Path(tmp.name)
     try:
-        store.mkdir(parents=True, exist_ok=True)
+        try:
+            make_folder(store)
+        except OutputError as exc:
+            if out_dir is None:
+                raise
+            raise ConfigError(not_allowed("--out", str(out_dir), f"a folder codebench can write "
+                                          f"({str(exc).rstrip('.')})")) from None
         device_file = (store / "device.json").resolve()
         device_file.write_text(device.canonical_json() + "\n")
-        budget = WorkBudget.from_request(request.budget_seconds, request.work)
+        budget = WorkBudget.from_request(request.budget_seconds, request.work,
+                                         get_decoder(request.decoder_name).relative_cost)
         started = time.perf_counter()
         factory = request.executor_factory or make_executor
         executor = factory(count)  # ours: closed below, whatever happens
@@ -188,6 +197,12 @@ def run_forecast(request: ForecastRequest) -> ForecastResult:
         finally:
             executor.close(wait=False)
         wall = time.perf_counter() - started  # reported, never planned with
+        if all(row.estimate.shots == 0 for rows in per_basis.values() for row in rows):
+            raise RunFault(
+                f"the hard time limit ({HARD_LIMIT:g} x --budget-seconds) ended the forecast before any distance "
+                f"was sampled (decoder {request.decoder_name!r} costs about "
+                f"{get_decoder(request.decoder_name).relative_cost:g}x matching per detector-shot): give a larger "
+                "--budget-seconds, or --work for a plan without a time limit")
         result = _assemble(context, per_basis, source if not isinstance(request.device, Device) else None, wall)
         if out_dir is not None:
             from codebench.forecast.render import write_outputs
@@ -291,7 +306,8 @@ def _stratified(context: Context, sampler: Sampler, distance: int, share: float)
 def _cut_short(distance: int, pilot: Sample | None) -> Sampled:
     estimate = direct_estimate(pilot) if pilot is not None else Estimate("not sampled", "direct", None, None, None,
                                                                          0, 0)
-    return Sampled(distance, estimate.flagged("cut short by the hard time limit: pilot counts only"),
+    shots = f"{pilot.shots:,} shots" if pilot is not None else "no shots"
+    return Sampled(distance, estimate.flagged(f"cut short by the hard time limit before its own sampling: {shots}"),
                    "time limit reached before this distance", None, pilot_only=True)
 
 

@@ -88,15 +88,9 @@ class Sampler:
         before = sum(s.work for s in self.samples.values())
         frame = run_sweep(config, out=self.folder, executor=self.executor, progress=self.progress,
                           stop_when=self.budget.expired)
-        if self.budget.expired():
-            # The stopped sweep's batches stay in the store (a rerun resumes them); this
-            # forecast keeps the counts it had, and names the distance as cut short.
-            if self.progress:
-                print(file=sys.stderr)
-            self.log.append({"sweep": config["name"], "points": 0, "failure_target": failure_target,
-                             "shot_budget": shot_budget, "wall_seconds": time.perf_counter() - started,
-                             "work": 0.0, "stopped": "hard time limit"})
-            return [self.samples[key] for key in sorted(wanted_keys(points)) if key in self.samples]
+        stopped = self.budget.expired()
+        if stopped and self.progress:
+            print(file=sys.stderr)
         wanted = wanted_keys(points)
         out = []
         for record in frame.to_dict("records"):
@@ -118,7 +112,9 @@ class Sampler:
         self.budget.charge(spent)
         self.log.append({"sweep": config["name"], "points": len(out), "failure_target": failure_target,
                          "shot_budget": shot_budget, "wall_seconds": time.perf_counter() - started,
-                         "work": spent})
+                         "work": spent, **({"stopped": "hard time limit"} if stopped else {})})
+        # Cut short by the hard time limit, the points keep every batch counted so far (the counted
+        # prefix of their batches, as in any stopped sweep); the caller names them as cut short.
         return out
 
     def at(self, distance: int) -> list[Sample]:
