@@ -274,3 +274,45 @@ def test_render_script_flags_and_missing_chromium(tmp_path: Path, monkeypatch: p
     assert script.main([str(tmp_path)]) == 2
     assert "apt-get install chromium chromium-driver" in capsys.readouterr().err
     assert script.main([str(tmp_path / "nowhere")]) == 2
+
+
+def _marker_points(ax: Any) -> list[tuple[float, float]]:
+    """Display coordinates of every drawn marker of ``ax``."""
+    import numpy as np
+
+    points: list[tuple[float, float]] = []
+    for line in ax.lines:
+        if not line.get_visible() or line.get_marker() in (None, "None", "", " "):
+            continue
+        xy = np.asarray(line.get_xydata(), dtype=float)
+        if xy.size:
+            shown = ax.transData.transform(xy)
+            points += [(float(x), float(y)) for x, y in shown if np.isfinite(x) and np.isfinite(y)]
+    return points
+
+
+def test_no_legend_or_annotation_covers_another_or_a_marker(sweep: tuple[Path, pd.DataFrame, AnalysisResult]) -> None:
+    """Rendered figures: the boxes of legends and annotations overlap neither each other nor any marker
+    (common practice for a figure read in a design review)."""
+    from matplotlib.legend import Legend
+
+    from codebench.figures.write import plan_figures
+
+    _, frame, analysis = sweep
+    plans = plan_figures(frame, analysis)
+    assert plans
+    for plan in plans:
+        fig = plan.render()
+        fig.canvas.draw()
+        renderer = fig.canvas.get_renderer()  # type: ignore[attr-defined]
+        for ax in fig.axes:
+            legends = list({id(c): c for c in ax.get_children() if isinstance(c, Legend)}.values())
+            texts = [t for t in ax.texts if t.get_visible() and t.get_text().strip()]
+            named = [(f"legend {i}", legend.get_window_extent(renderer)) for i, legend in enumerate(legends)]
+            named += [(f"text {t.get_text()[:30]!r}", t.get_window_extent(renderer)) for t in texts]
+            for i, (first, box) in enumerate(named):
+                for second, other in named[i + 1:]:
+                    assert not box.overlaps(other), f"{plan.stem}: {first} overlaps {second}"
+            for name, box in named:
+                covered = [p for p in _marker_points(ax) if box.x0 <= p[0] <= box.x1 and box.y0 <= p[1] <= box.y1]
+                assert not covered, f"{plan.stem}: {name} covers {len(covered)} marker(s)"
