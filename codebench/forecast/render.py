@@ -23,18 +23,21 @@ from __future__ import annotations
 import csv
 import json
 import math
-import os
-import tempfile
 from pathlib import Path
-from typing import Any, Sequence, cast
+from typing import IO, Any, Sequence, cast
 
 import matplotlib
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.ticker import MaxNLocator
 
+from codebench.figures.canvas import log_axis, save, titles
+from codebench.figures.style import INK, MUTED, STYLE, TARGET_INK, distance_colour
+from codebench.files import make_folder, write_atomically, write_text
 from codebench.forecast.details import ExtrapolatedDetails, StratifiedDetails
 from codebench.forecast.result import DistanceForecast, ForecastResult
 from codebench.results.export import speed_verdict
+from codebench.stats import Z95
 
 __all__ = ["CSV_COLUMNS", "forecast_table", "forecast_figure", "write_outputs"]
 
@@ -45,8 +48,8 @@ CSV_COLUMNS = [
     "scales", "exponent", "exponent_se", "break_even_verdict", "beats_best_idle", "beats_median_idle",
     "decode_us_per_round", "keeps_up",
 ]
-DPI = 150
-_COLOURS = ("#1b6ca8", "#d1495b", "#2e8b57", "#8a5a00", "#6a4c93", "#00798c", "#c05a00", "#3d3d3d")
+#: The points, the fit, and the idle-qubit lines: the project's ink, accent and guide colours.
+_COLOURS = (INK, "#d9622b", "#127a7a", TARGET_INK, "#4a4aa8", "#b03a76", "#4f8a2b", MUTED)
 
 
 def _e(value: float | None, digits: int = 3) -> str:
@@ -199,13 +202,6 @@ def _csv_rows(result: ForecastResult) -> list[dict[str, object]]:
     return out
 
 
-def _atomic_write(path: Path, text: str) -> None:
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}-", suffix=path.suffix, dir=path.parent)
-    with os.fdopen(fd, "w", newline="") as handle:
-        handle.write(text)
-    os.replace(tmp, path)
-
-
 def _band(rate: float | None, low: float | None, high: float | None) -> tuple[float, float, float] | None:
     """(rate, low, high) when all three are known."""
     if rate is None or low is None or high is None:
@@ -266,6 +262,18 @@ def forecast_figure(result: ForecastResult) -> Figure:
         def line(d: float) -> float:
             return float(c / lam ** ((d + 1) / 2))
 
+        # 95% band of the fit: ln eps = ln C - ((d + 1) / 2) ln Lambda, var by the delta method from the
+        # covariance of (ln C, ln Lambda).
+        (v_c, cov), (_, v_l) = fit.log_cov[0][:2], fit.log_cov[1][:2]
+
+        def fit_band(d: float) -> tuple[float, float]:
+            half = (d + 1) / 2
+            spread = Z95 * math.sqrt(max(0.0, v_c + half * half * v_l - 2 * half * cov))
+            return line(d) * math.exp(-spread), line(d) * math.exp(spread)
+
+        left.fill_between(ds_line, [fit_band(d)[0] for d in ds_line], [fit_band(d)[1] for d in ds_line],
+                          color=_COLOURS[1], alpha=0.15, linewidth=0, label="fit, 95% band")
+
         left.plot(inside, [line(d) for d in inside], "-", color=_COLOURS[1],
                   label=f"fit: Lambda = {lam:.3g} [{fit.lam_low:.3g}, {fit.lam_high:.3g}]")
         if len(outside) > 1:
@@ -285,11 +293,17 @@ def forecast_figure(result: ForecastResult) -> Figure:
     if be.qubits_considered > 1:
         left.axhline(be.idle_error_median, color=_COLOURS[3], lw=1.2, ls="-.",
                      label=f"idle qubit, median: {be.idle_error_median:.2g}")
-    left.set_yscale("log")
+    log_axis(left, "y")
+    shown = sorted({r.distance for r in rows} | set(reachable))
+    if len(shown) <= 10:  # the distances that mean something: sampled or needed for a target
+        left.set_xticks(shown)
+    else:
+        left.xaxis.set_major_locator(MaxNLocator(integer=True))
     left.set_xlabel("code distance d")
     left.set_ylabel("logical error per round")
-    left.set_title(f"{result.device}: {result.code} ({result.basis}), {result.decoder}; "
-                   f"round {result.round_duration_us:.3g} us", fontsize=9)
+    titles(left, f"Forecast: {result.device}",
+           f"{result.code} \u00b7 {result.basis} basis \u00b7 {result.decoder} \u00b7 round "
+           f"{result.round_duration_us:.3g} \u00b5s")
     left.grid(True, which="major", alpha=0.3)
     left.legend(fontsize=7, loc="best")  # the least-covered corner: markers stay visible
 
@@ -305,8 +319,8 @@ def _side_panel(ax: Any, rows: Sequence[DistanceForecast]) -> None:
     stratified = [(r.distance, r.details) for r in rows
                   if r.method_kind == "stratified" and isinstance(r.details, StratifiedDetails)]
     if stratified:
-        for i, (distance, details) in enumerate(stratified):
-            colour = _COLOURS[i % len(_COLOURS)]
+        for distance, details in stratified:
+            colour = distance_colour(distance)
             pts = [p for p in details.spectrum if p.failures > 0]
             if not pts:
                 continue
@@ -318,13 +332,13 @@ def _side_panel(ax: Any, rows: Sequence[DistanceForecast]) -> None:
             if details.w_dominant:
                 a, b = details.w_dominant
                 ax.axvspan(a - 0.5, b + 0.5, color=colour, alpha=0.08)
-        ax.set_xlabel("faults per shot w (shaded: the w that dominate P_L)")
+        ax.set_xlabel("faults per shot w (shaded: the w that dominate)")
         ax.set_ylabel("failure probability given w faults, f(w)")
-        ax.set_yscale("log")
+        log_axis(ax, "y")
         ax.set_title("failure spectrum (95% Wilson intervals)", fontsize=9)
     else:
-        for i, r in enumerate(rows):
-            colour = _COLOURS[i % len(_COLOURS)]
+        for r in rows:
+            colour = distance_colour(r.distance)
             raised = r.details if isinstance(r.details, ExtrapolatedDetails) else None
             points = raised.points if raised is not None else ()
             good = [(p.scale, band) for p in points
@@ -343,8 +357,8 @@ def _side_panel(ax: Any, rows: Sequence[DistanceForecast]) -> None:
                 ax.errorbar([1.0], [rate], yerr=[[rate - low], [high - rate]],
                             fmt="s", mfc="white", color=colour, capsize=3,
                             label=f"d = {r.distance}, at s = 1 (exponent {exponent:.2f})")
-        ax.set_xscale("log")
-        ax.set_yscale("log")
+        log_axis(ax, "x")
+        log_axis(ax, "y")
         ax.set_xlabel("noise scale s (1 = the device)")
         ax.set_ylabel("logical error per round")
         ax.set_title("per-round error against the noise scale s", fontsize=9)
@@ -355,19 +369,18 @@ def _side_panel(ax: Any, rows: Sequence[DistanceForecast]) -> None:
 
 def write_outputs(result: ForecastResult, folder: str | Path) -> list[Path]:
     """Write forecast.json, forecast.csv, forecast.png and forecast.svg into ``folder``."""
-    out = Path(folder)
-    out.mkdir(parents=True, exist_ok=True)
+    out = make_folder(folder)
     paths = [out / "forecast.json", out / "forecast.csv", out / "forecast.png", out / "forecast.svg"]
-    _atomic_write(paths[0], json.dumps(result.to_json(), indent=2, allow_nan=False) + "\n")
+    write_text(paths[0], json.dumps(result.to_json(), indent=2, allow_nan=False) + "\n")
     rows = _csv_rows(result)
-    fd, tmp = tempfile.mkstemp(prefix=".forecast-", suffix=".csv", dir=out)
-    with os.fdopen(fd, "w", newline="") as handle:
+
+    def table(handle: IO[Any]) -> None:
         writer = csv.DictWriter(handle, fieldnames=CSV_COLUMNS)
         writer.writeheader()
         writer.writerows(rows)
-    os.replace(tmp, paths[1])
-    fig = forecast_figure(result)
-    fig.savefig(paths[2], dpi=DPI, metadata={"Software": None})
-    with matplotlib.rc_context(cast(Any, {"svg.hashsalt": "forecast"})):
-        fig.savefig(paths[3], metadata={"Date": None, "Creator": None})
+
+    write_atomically(paths[1], table)
+    # The project's look, as in `codebench figures`; one draw for both files.
+    with matplotlib.rc_context(cast(Any, STYLE)):
+        save(forecast_figure(result), paths[2], paths[3], "forecast")
     return paths
