@@ -173,7 +173,17 @@ def cmd_figures(args: argparse.Namespace) -> int:
 
 
 def cmd_report(args: argparse.Namespace) -> int:
-    from codebench.report import write_report
+    from codebench.api import STORE_NAME
+    from codebench.report import FORECAST_FILE, write_forecast_report, write_report
+
+    folder = Path(args.dir)
+    if (folder / FORECAST_FILE).is_file() and not (folder / STORE_NAME).exists():
+        # A forecast's --out folder: its own page (its samples in store/ are the forecast's, not a sweep).
+        target = _output_folder(args, "report")
+        with _to_option(args):
+            path = write_forecast_report(folder, to=None if args.to is None else target)
+        print(f"wrote {path} and {path.parent / 'summary.md'}")
+        return EXIT_OK
 
     frame, result = _analysis(args)
     target = _output_folder(args, "report")

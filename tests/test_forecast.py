@@ -480,3 +480,31 @@ def test_near_threshold_targets_are_not_projected_far() -> None:
     far, near = targets("rotated_surface", fit, [1e-9, 1.5e-2], 7)
     assert far.distance is None and "near threshold" in str(far.not_projected)
     assert near.distance is not None and near.distance <= 14 and near.not_projected is None
+
+
+def test_report_of_a_forecast_folder_and_of_a_sweep_folder_holding_one(
+        improved: tuple[ForecastResult, Path], tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """`codebench report` on a forecast's --out folder writes its own page (tables, figure, cautions,
+    break-even); a sweep folder holding forecast folders gets their sections on its page."""
+    import shutil
+
+    from codebench.api import run_sweep
+    from codebench.cli import main
+
+    result, out = improved
+    assert main(["report", str(out)]) == 0
+    page = (out / "report" / "index.html").read_text(encoding="utf-8")
+    for text in ("Logical error per round by distance", "Distance and qubits for each target",
+                 "Break-even against an idle qubit", "Forecast cautions and notes", "<svg"):
+        assert text in page
+    assert f"{result.distances[0].per_round_rate:.3e}" in page
+    assert "Break-even" in (out / "report" / "summary.md").read_text(encoding="utf-8")
+    sweep = tmp_path / "sweep"
+    run_sweep({"name": "with-forecast", "seed": 2, "stopping": {"shot_budget": 2000},
+               "study": [{"code": "repetition", "distances": [3, 5], "rounds": "d", "noise": "si1000",
+                          "p": [0.01], "decoders": ["mwpm"]}]}, out=sweep, workers=1, progress=False)
+    shutil.copytree(out, sweep / "forecast-improved", ignore=shutil.ignore_patterns("store", "report"))
+    assert main(["report", str(sweep), "--bootstrap", "20"]) == 0
+    combined = (sweep / "report" / "index.html").read_text(encoding="utf-8")
+    assert 'id="forecast-1"' in combined and "Break-even against an idle qubit" in combined
+    capsys.readouterr()

@@ -10,7 +10,8 @@ speed and a list of cautions. One module per job:
 - :mod:`.content`: what the report says (:class:`~.content.Report`, results and fit tables);
 - :mod:`.run`: what was run, from the store; :mod:`.speed`: the decoder-speed table;
 - :mod:`.cautions`: what to be careful about; :mod:`.blocks`: tables, badges, number formats;
-- :mod:`.html` and :mod:`.markdown`: the two renderings.
+- :mod:`.html` and :mod:`.markdown`: the two renderings;
+- :mod:`.forecast_page`: a forecast's folder, on a page of its own or as sections of a sweep's page.
 """
 
 from __future__ import annotations
@@ -25,13 +26,21 @@ from codebench.figures import plain_analysis, render_figures
 from codebench.files import make_folder, write_text
 from codebench.report.cautions import FEW_FAILURES, SMALL_DISTANCE
 from codebench.report.content import Report
+from codebench.report.forecast_page import (
+    FORECAST_FILE,
+    forecast_folders,
+    forecast_markdown,
+    forecast_page,
+    forecast_sections,
+    load_forecast,
+)
 from codebench.report.html import html_page
 from codebench.report.markdown import markdown
 from codebench.report.run import RunInfo, read_run_info
 from codebench.report.speed import round_durations_us, speed_table
 
-__all__ = ["FEW_FAILURES", "REPORT_DIR", "SMALL_DISTANCE", "RunInfo", "read_run_info", "round_durations_us",
-           "speed_table", "write_report"]
+__all__ = ["FEW_FAILURES", "FORECAST_FILE", "REPORT_DIR", "SMALL_DISTANCE", "RunInfo", "read_run_info", "round_durations_us",
+           "speed_table", "write_forecast_report", "write_report"]
 
 REPORT_DIR = "report"
 
@@ -60,11 +69,24 @@ def write_report(folder: Path, frame: pd.DataFrame | None = None, analysis: obje
         records = plain_analysis(analysis)
     target = folder if to is None else Path(to)
     figures = render_figures(target, frame, records)
-    report = Report(folder, frame, records, read_run_info(folder), figures, problems)
+    extra = tuple(section for i, sub in enumerate(forecast_folders(folder))
+                  for section in forecast_sections(sub, load_forecast(sub), anchor=f"forecast-{i + 1}"))
+    report = Report(folder, frame, records, read_run_info(folder), figures, problems, extra)
     out_dir = make_folder(target / REPORT_DIR)
     index = out_dir / "index.html"
     write_text(index, html_page(report))
     write_text(out_dir / "summary.md", markdown(report))
+    return index
+
+
+def write_forecast_report(folder: Path, to: Path | None = None) -> Path:
+    """Write the report of a forecast's ``--out`` folder (``report/index.html`` and ``summary.md``)."""
+    folder = Path(folder)
+    doc = load_forecast(folder)
+    out_dir = make_folder((folder if to is None else Path(to)) / REPORT_DIR)
+    index = out_dir / "index.html"
+    write_text(index, forecast_page(folder, doc))
+    write_text(out_dir / "summary.md", forecast_markdown(doc))
     return index
 
 

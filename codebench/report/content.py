@@ -52,6 +52,8 @@ class Report:
     run: RunInfo
     figures: list[FigureFile]
     problems: list[str]
+    #: Further page sections ``(anchor, title, html)``: the forecasts kept in the folder's subfolders.
+    extra_sections: tuple[tuple[str, str, str], ...] = ()
 
     @property
     def title(self) -> str:

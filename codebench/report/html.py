@@ -86,29 +86,30 @@ footer { color: var(--muted); font-size: 12px; padding: 8px 0 24px; }
 """
 
 
-def _esc(text: Any) -> str:
+def esc(text: Any) -> str:
+    """``text`` escaped for HTML (quotes too)."""
     return escape(str(text), quote=True)
 
 
 def _cell(cell: Cell) -> str:
     if isinstance(cell, Badge):
-        return f'<span class="badge {_esc(cell.kind)}">{_esc(cell.text)}</span>'
-    return _esc(cell)
+        return f'<span class="badge {esc(cell.kind)}">{esc(cell.text)}</span>'
+    return esc(cell)
 
 
 def html_table(table: Table, css: str = "") -> str:
     """``table`` as an HTML table in a horizontally scrolling box."""
-    head = "".join(f"<th>{_esc(h)}</th>" for h in table.headers)
+    head = "".join(f"<th>{esc(h)}</th>" for h in table.headers)
     body = []
     for i, row in enumerate(table.rows):
         row_css = table.row_classes[i] if i < len(table.row_classes) else ""
         cells = "".join(
             f'<td class="num">{_cell(c)}</td>' if j in table.numeric else f"<td>{_cell(c)}</td>"
             for j, c in enumerate(row))
-        body.append(f'<tr class="{_esc(row_css)}">{cells}</tr>' if row_css else f"<tr>{cells}</tr>")
+        body.append(f'<tr class="{esc(row_css)}">{cells}</tr>' if row_css else f"<tr>{cells}</tr>")
     if not body:
-        body.append(f'<tr><td class="empty" colspan="{len(table.headers)}">{_esc(table.empty)}</td></tr>')
-    klass = f' class="{_esc(css)}"' if css else ""
+        body.append(f'<tr><td class="empty" colspan="{len(table.headers)}">{esc(table.empty)}</td></tr>')
+    klass = f' class="{esc(css)}"' if css else ""
     return (f'<div class="scroll"><table{klass}><thead><tr>{head}</tr></thead>'
             f'<tbody>{"".join(body)}</tbody></table></div>')
 
@@ -117,20 +118,20 @@ _SVG_OPEN = re.compile(r"<svg\b[^>]*>", re.S)
 _METADATA = re.compile(r"\s*<metadata>.*?</metadata>", re.S)
 
 
-def _inline_svg(path: Path, label: str) -> str:
+def inline_svg(path: Path, label: str) -> str:
     """The SVG file as an inline element: no XML prolog, scaled by CSS, labelled for screen readers."""
     text = path.read_text(encoding="utf-8")
     match = _SVG_OPEN.search(text)
     if match is None:
         return ""
     opening = re.sub(r'\s(width|height)="[^"]*"', "", match.group(0))
-    opening = opening[:-1].rstrip("/") + f' role="img" aria-label="{_esc(label)}">'
+    opening = opening[:-1].rstrip("/") + f' role="img" aria-label="{esc(label)}">'
     return opening + _METADATA.sub("", text[match.end():]).strip()
 
 
-def _png_link(path: Path) -> str:
+def png_link(path: Path) -> str:
     data = base64.b64encode(path.read_bytes()).decode("ascii")
-    return f'<a download="{_esc(path.name)}" href="data:image/png;base64,{data}">PNG</a>'
+    return f'<a download="{esc(path.name)}" href="data:image/png;base64,{data}">PNG</a>'
 
 
 _FIGURE_KINDS = (
@@ -156,38 +157,36 @@ def _figures(report: Report) -> str:
         items = []
         for fig in (f for f in report.figures if f.kind == kind):
             items.append(
-                f'<figure id="fig-{_esc(fig.stem)}">{_inline_svg(fig.svg, fig.caption)}'
-                f"<figcaption>{_esc(fig.caption)} {_png_link(fig.png)}"
-                f' <span class="file">{_esc(fig.stem)}.png / .svg</span></figcaption></figure>')
+                f'<figure id="fig-{esc(fig.stem)}">{inline_svg(fig.svg, fig.caption)}'
+                f"<figcaption>{esc(fig.caption)} {png_link(fig.png)}"
+                f' <span class="file">{esc(fig.stem)}.png / .svg</span></figcaption></figure>')
         if items:
-            parts.append(f'<h3>{_esc(title)}</h3><p class="intro">{_esc(intro)}</p>'
+            parts.append(f'<h3>{esc(title)}</h3><p class="intro">{esc(intro)}</p>'
                          f'<div class="figures">{"".join(items)}</div>')
     return "".join(parts)
 
 
-def _caution(caution: Caution) -> str:
-    paragraphs = "".join(f"<p>{_esc(line)}</p>" for line in caution.text.split("\n") if line)
+def caution_html(caution: Caution) -> str:
+    paragraphs = "".join(f"<p>{esc(line)}</p>" for line in caution.text.split("\n") if line)
     table = html_table(caution.table) if caution.table is not None else ""
-    return f'<div class="caution{" ok" if caution.ok else ""}"><h3>{_esc(caution.title)}</h3>{paragraphs}{table}</div>'
+    return f'<div class="caution{" ok" if caution.ok else ""}"><h3>{esc(caution.title)}</h3>{paragraphs}{table}</div>'
 
 
 def html_page(report: Report) -> str:
     """The whole page."""
     run = report.run
-    facts = "".join(
-        f'<div class="card{" alert" if label == "incomplete points" and value != "0" else ""}">'
-        f'<div class="label">{_esc(label)}</div><div class="value">{_esc(value)}</div></div>'
-        for label, value in report.facts())
-    run_rows = "".join(f"<tr><th>{_esc(k)}</th><td>{_esc(v)}</td></tr>" for k, v in report.run_rows())
-    sweep_text = (f"<pre>{_esc(run.sweep_text)}</pre>" if run.sweep_text.strip()
+    facts = cards(report.facts(), {label for label, value in report.facts()
+                                   if label == "incomplete points" and value != "0"})
+    run_rows = "".join(f"<tr><th>{esc(k)}</th><td>{esc(v)}</td></tr>" for k, v in report.run_rows())
+    sweep_text = (f"<pre>{esc(run.sweep_text)}</pre>" if run.sweep_text.strip()
                   else '<p class="intro">No sweep file text was recorded (the sweep was given as a mapping).</p>')
     fits = "".join(
-        f'<h3 id="{_esc(t.key)}">{_esc(t.title)}</h3><p class="intro">{_esc(t.intro)}</p>{html_table(t)}'
+        f'<h3 id="{esc(t.key)}">{esc(t.title)}</h3><p class="intro">{esc(t.intro)}</p>{html_table(t)}'
         for t in report.fits())
     notes = report.notes()
-    notes_html = ('<ul class="notes">' + "".join(f"<li>{_esc(n)}</li>" for n in notes) + "</ul>" if notes
+    notes_html = ('<ul class="notes">' + "".join(f"<li>{esc(n)}</li>" for n in notes) + "</ul>" if notes
                   else '<p class="intro">No notes: every fit that applies was made.</p>')
-    cautions = "".join(_caution(c) for c in report.cautions())
+    cautions = "".join(caution_html(c) for c in report.cautions())
     results = report.results()
     speed = report.speed
     sections = [
@@ -195,23 +194,36 @@ def html_page(report: Report) -> str:
                                 f'<div><h3 class="first">Sweep file</h3>{sweep_text}</div></div>'),
         ("figures", "Figures", _figures(report)),
         ("cautions", "Cautions", cautions),
-        ("fits", "Fits", f'<p class="intro">{_esc(report.settings_text())}</p>{fits}'),
+        ("fits", "Fits", f'<p class="intro">{esc(report.settings_text())}</p>{fits}'),
         ("notes", "Notes on the fits", notes_html),
-        ("speed", speed.title, f'<p class="intro">{_esc(speed.intro)}</p>{html_table(speed)}'),
-        ("results", "Results", f'<p class="intro">{_esc(results.intro)}</p>{html_table(results)}'),
+        ("speed", speed.title, f'<p class="intro">{esc(speed.intro)}</p>{html_table(speed)}'),
+        ("results", "Results", f'<p class="intro">{esc(results.intro)}</p>{html_table(results)}'),
     ]
-    nav = "".join(f'<a href="#{key}">{_esc(title)}</a>' for key, title, _ in sections)
-    body = "".join(f'<section id="{key}"><h2>{_esc(title)}</h2>{content}</section>'
-                   for key, title, content in sections)
     stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
     subtitle = f"Sweep folder {report.folder.name} \u00b7 seed {run.seed or 'not recorded'} \u00b7 written {stamp}"
+    return page_shell(report.title, subtitle, facts, sections + list(report.extra_sections))
+
+
+def page_shell(title: str, subtitle: str, facts: str, sections: list[tuple[str, str, str]]) -> str:
+    """The page around its sections ``(anchor, title, html)``: header with navigation, cards, footer."""
+    nav = "".join(f'<a href="#{key}">{esc(name)}</a>' for key, name, _ in sections)
+    body = "".join(f'<section id="{key}"><h2>{esc(name)}</h2>{content}</section>'
+                   for key, name, content in sections)
     return (
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
         "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
-        f"<title>codebench report: {_esc(report.title)}</title>\n<style>{_CSS}</style>\n</head>\n<body>\n"
+        f"<title>codebench report: {esc(title)}</title>\n<style>{_CSS}</style>\n</head>\n<body>\n"
         f'<header><div class="wrap"><div class="kicker">codebench report</div>'
-        f"<h1>{_esc(report.title)}</h1><p>{_esc(subtitle)}</p><nav>{nav}</nav></div></header>\n"
+        f"<h1>{esc(title)}</h1><p>{esc(subtitle)}</p><nav>{nav}</nav></div></header>\n"
         f'<main class="wrap"><div class="cards">{facts}</div>{body}</main>\n'
-        f'<footer class="wrap">Written by codebench {_esc(versions().get("codebench", "unknown"))}. '
+        f'<footer class="wrap">Written by codebench {esc(versions().get("codebench", "unknown"))}. '
         "Intervals are 95%. Figures are embedded; the same files are in the figures folder next to this "
         "report.</footer>\n</body>\n</html>\n")
+
+
+def cards(facts: list[tuple[str, str]], alert: set[str] | None = None) -> str:
+    """Key facts as cards; those named in ``alert`` drawn as alerts."""
+    return "".join(
+        f'<div class="card{" alert" if label in (alert or set()) else ""}">'
+        f'<div class="label">{esc(label)}</div><div class="value">{esc(value)}</div></div>'
+        for label, value in facts)
