@@ -62,9 +62,13 @@ def test_check_intervals_quick_prints_coverage() -> None:
 
 
 def test_bench_overhead_prints_every_case() -> None:
-    out = run_script("bench_overhead.py", "--shots", "3000", "--small-shots", "300", "--cases", "small,d3")
-    assert "bare/eng1 wall" in out
-    assert [line.split()[0] for line in out.splitlines()[1:]] == ["small", "d3"]
+    out = run_script("bench_overhead.py", "--shots", "3000", "--small-shots", "300", "--cases", "small,d3",
+                     "--repeats", "1")
+    lines = out.splitlines()
+    assert lines[0].startswith("2-worker pool start-up and close")
+    header = next(i for i, line in enumerate(lines) if "bare/eng1 wall" in line)
+    assert [line.split()[0] for line in lines[header + 1:]] == ["small", "d3"]
+    assert "eng1/eng2 cpu" in lines[header]
 
 
 def test_bench_throughput_prints_wall_and_cpu_ratios() -> None:
