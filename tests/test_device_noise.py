@@ -474,8 +474,11 @@ def test_code_needing_a_missing_edge_fails_at_circuit_build() -> None:
     message = str(info.value)
     assert "\n" not in message
     assert "repetition d=3" in message and "q2" in message and "q3" in message and "[coupling]" in message
-    # Without a layout for the code there is no mapping, so the coupling graph is not consulted.
-    assert noisy_circuit(device_point(gappy, code="repetition", distance=5)).num_detectors > 0
+    # Without a layout the code is placed on the coupling graph: d = 5 needs 9 qubits of the 5 (issue 13:
+    # never a silent use of the defaults), and the message names the largest distance that fits.
+    with pytest.raises(DeviceFileError) as info:
+        noisy_circuit(device_point(gappy, code="repetition", distance=5))
+    assert "repetition d=5 does not fit" in str(info.value) and "largest distance that fits is 3" in str(info.value)
 
 
 def _sweep_file(tmp_path: Path, device: str) -> Path:

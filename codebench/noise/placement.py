@@ -1,0 +1,264 @@
+"""Placing a code patch on a device's own qubits, and ranking the placements.
+
+**Embeddings.** The code's interaction graph has its qubits as nodes and one edge per pair that
+shares a two-qubit gate anywhere in the memory circuit. A placement maps the code's qubits one to
+one onto usable device qubits so that every edge lands on a usable coupler: a subgraph
+monomorphism of the interaction graph into the usable coupling graph, found with networkx's VF2
+matcher (Cordella, Foggia, Sansone, Vento, IEEE TPAMI 26, 1367 (2004)). On a lattice this finds the
+translations and the lattice's rotations and reflections of the patch, and any other way the
+graph fits; ``tests/test_placement.py`` checks the count against an independent brute-force search.
+
+**Proxy of the logical error** (:func:`logical_proxy`), from the placed circuit's detector error
+model (rounds = d, both memory bases of the family): each graphlike mechanism is an edge between
+its detectors (or a detector and the boundary) with weight w = ln((1 - p) / p), parallel mechanisms
+merged; the cheapest logical failure is the lightest boundary-to-boundary path that flips the
+observable (a shortest path on the graph doubled by observable parity, Dijkstra), of weight W, and N
+is the number of such lightest paths. The proxy is N exp(-W / 2): a decoder that matches to the
+lightest correction fails once about half of the path's mechanisms fire, so the leading failure
+term scales as exp(-W / 2) (Dennis, Kitaev, Landahl, Preskill, J. Math. Phys. 43, 4452 (2002),
+Sec. IV; the combinatorial factor is the same for every placement of one code and is left out).
+It is a ranking, not a rate: ``codebench placements --sample`` samples the rates, and the tests
+check that the ranking of a clean placement and one with a 10x worse qubit agrees with sampling.
+Mechanisms touching three or more detectors after decomposition are left out.
+
+**Many embeddings.** A path-like code (repetition) fits a large grid in very many ways: at most
+:data:`MAX_EMBEDDINGS` are enumerated (in the matcher's fixed order), and when more than
+:data:`MAX_RANKED` are found, the proxy is computed for the :data:`MAX_RANKED` candidates nearest the
+chosen end (best, worst or median) of a cheap pre-score: the sum of the placed qubits' and couplers'
+error numbers (:func:`rank`'s ``cheap``).
+"""
+
+from __future__ import annotations
+
+import heapq
+import math
+from dataclasses import dataclass
+from typing import Callable, Iterable, Sequence
+
+import stim
+
+from codebench.circuits import GateSet
+from codebench.codes.base import CodeFamily
+from codebench.noise.geometry import Geometry
+
+#: Most embeddings enumerated, and most ranked by the detector-error-model proxy.
+MAX_EMBEDDINGS = 20_000
+MAX_RANKED = 200
+
+Placement = tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class Ranked:
+    """One candidate placement: device qubit of each code qubit, and its proxy."""
+
+    qubits: Placement
+    proxy: float
+    weight: float
+    paths: int
+
+
+def interaction_graph(family: CodeFamily, distance: int, gate_set: GateSet) -> tuple[tuple[int, ...],
+                                                                                     list[tuple[int, int]]]:
+    """(code qubits, pairs that share a two-qubit gate in any basis' memory circuit), sorted."""
+    pairs: set[tuple[int, int]] = set()
+    qubits: tuple[int, ...] = ()
+    for basis in family.bases:
+        ideal = family.ideal_circuit(distance, 1, basis, gate_set)
+        qubits = ideal.qubits
+        for layer in ideal.layers:
+            if layer.kind == "gate2":
+                for op in layer.ops:
+                    for a, b in zip(op.targets[::2], op.targets[1::2]):
+                        pairs.add((min(a, b), max(a, b)))
+    return qubits, sorted(pairs)
+
+
+def _graphs(geometry: Geometry, qubits: Sequence[int], pairs: Sequence[tuple[int, int]]) -> tuple[object, object]:
+    import networkx as nx
+
+    host = nx.Graph()
+    host.add_nodes_from(q for q in geometry.nodes if q not in geometry.dead_qubits)
+    host.add_edges_from(geometry.usable_edges())
+    pattern = nx.Graph()
+    pattern.add_nodes_from(qubits)
+    pattern.add_edges_from(pairs)
+    return host, pattern
+
+
+def _could_fit(host: object, pattern: object) -> bool:
+    """Quick necessary conditions: enough qubits, couplers and qubits of each degree."""
+    hosts = sorted((d for _, d in host.degree), reverse=True)  # type: ignore[attr-defined]
+    needs = sorted((d for _, d in pattern.degree), reverse=True)  # type: ignore[attr-defined]
+    if len(needs) > len(hosts) or pattern.number_of_edges() > host.number_of_edges():  # type: ignore[attr-defined]
+        return False
+    return all(h >= n for h, n in zip(hosts, needs))
+
+
+def embeddings(geometry: Geometry, qubits: Sequence[int], pairs: Sequence[tuple[int, int]],
+               limit: int = MAX_EMBEDDINGS) -> list[Placement]:
+    """Every placement (device qubit per code qubit, in ``qubits`` order), up to ``limit``, sorted."""
+    from networkx.algorithms.isomorphism import GraphMatcher
+
+    host, pattern = _graphs(geometry, qubits, pairs)
+    if not _could_fit(host, pattern):
+        return []
+    found: list[Placement] = []
+    for mapping in GraphMatcher(host, pattern).subgraph_monomorphisms_iter():
+        inverse = {code: dev for dev, code in mapping.items()}
+        found.append(tuple(inverse[q] for q in qubits))
+        if len(found) >= limit:
+            break
+    return sorted(found)
+
+
+def fits(geometry: Geometry, qubits: Sequence[int], pairs: Sequence[tuple[int, int]]) -> bool:
+    """Whether at least one placement exists."""
+    from networkx.algorithms.isomorphism import GraphMatcher
+
+    host, pattern = _graphs(geometry, qubits, pairs)
+    return _could_fit(host, pattern) and GraphMatcher(host, pattern).subgraph_is_monomorphic()
+
+
+def largest_fitting(geometry: Geometry, family: CodeFamily, gate_set: GateSet, below: int) -> int | None:
+    """The largest allowed distance under ``below`` whose patch fits (``None``: not even the smallest)."""
+    best = None
+    for d in range(2, below):
+        if family.distance_problem(d) is not None:
+            continue
+        if not fits(geometry, *interaction_graph(family, d, gate_set)):
+            break
+        best = d
+    return best
+
+
+def unplaced_problem(geometry: Geometry, family: CodeFamily, distance: int, gate_set: GateSet) -> str:
+    """The one-line reason a patch does not fit, naming the largest distance that does."""
+    usable = len([q for q in geometry.nodes if q not in geometry.dead_qubits])
+    need = len(interaction_graph(family, distance, gate_set)[0])
+    unusable = len(geometry.dead_qubits) + len(geometry.dead_pairs)
+    largest = largest_fitting(geometry, family, gate_set, distance)
+    reason = (f"{need} qubits needed, {usable} usable" if need > usable
+              else f"no region of {need} usable qubits with every coupler the code needs"
+                   + (f" ({unusable} qubits / couplers are marked unusable)" if unusable else ""))
+    fits_text = (f"the largest distance that fits is {largest}" if largest is not None
+                 else f"no distance of {family.name} fits")
+    return f"{family.name} d={distance} does not fit on the device ({reason}); {fits_text}."
+
+
+# --------------------------------------------------------------------------- the proxy
+
+
+def _graph_of(dem: stim.DetectorErrorModel) -> tuple[int, dict[tuple[int, int, int], float]]:
+    """Edges (u, v, observable parity) -> merged probability; the boundary is node ``num_detectors``."""
+    boundary = dem.num_detectors
+    edges: dict[tuple[int, int, int], float] = {}
+    for inst in dem.flattened():
+        if inst.type != "error":
+            continue
+        p = inst.args_copy()[0]
+        parts: list[list[stim.DemTarget]] = [[]]
+        for target in inst.targets_copy():
+            if target.is_separator():
+                parts.append([])
+            else:
+                parts[-1].append(target)
+        for part in parts:
+            dets = sorted(t.val for t in part if t.is_relative_detector_id())
+            flips = sum(1 for t in part if t.is_logical_observable_id()) % 2
+            if not dets or len(dets) > 2:
+                continue
+            key = (dets[0], dets[1] if len(dets) == 2 else boundary, flips)
+            q = edges.get(key, 0.0)
+            edges[key] = q * (1 - p) + p * (1 - q)
+    return boundary, edges
+
+
+def logical_proxy(dem: stim.DetectorErrorModel) -> tuple[float, float, int]:
+    """(proxy N exp(-W/2), W, N) of a detector error model (see the module docstring).
+
+    Three mechanisms of probability 0.1 in a chain from boundary to boundary, the first flipping the
+    observable: the only logical failure is all three (W = 3 ln 9, N = 1):
+
+    >>> dem = stim.DetectorErrorModel('''
+    ... error(0.1) D0 L0
+    ... error(0.1) D0 D1
+    ... error(0.1) D1
+    ... ''')
+    >>> proxy, weight, paths = logical_proxy(dem)
+    >>> round(weight, 6) == round(3 * math.log(9), 6), paths
+    (True, 1)
+    """
+    boundary, edges = _graph_of(dem)
+    adjacency: dict[int, list[tuple[int, int, float]]] = {}
+    for (u, v, flip), p in edges.items():
+        if p <= 0:
+            continue
+        w = math.log((1 - p) / p) if p < 0.5 else 0.0
+        adjacency.setdefault(u, []).append((v, flip, w))
+        adjacency.setdefault(v, []).append((u, flip, w))
+    start, goal = (boundary, 0), (boundary, 1)
+    dist: dict[tuple[int, int], float] = {start: 0.0}
+    count: dict[tuple[int, int], int] = {start: 1}
+    heap: list[tuple[float, tuple[int, int]]] = [(0.0, start)]
+    done: set[tuple[int, int]] = set()
+    while heap:
+        d, node = heapq.heappop(heap)
+        if node in done:
+            continue
+        done.add(node)
+        if node == goal:
+            break
+        for v, flip, w in adjacency.get(node[0], []):
+            nxt = (v, node[1] ^ flip)
+            nd = d + w
+            if nxt not in dist or nd < dist[nxt] - 1e-9 * max(1.0, dist[nxt]):
+                dist[nxt], count[nxt] = nd, count[node]
+                heapq.heappush(heap, (nd, nxt))
+            elif abs(nd - dist[nxt]) <= 1e-9 * max(1.0, dist[nxt]) and nxt not in done:
+                count[nxt] += count[node]
+    if goal not in dist:
+        return 0.0, math.inf, 0
+    weight = dist[goal]
+    return count[goal] * math.exp(-weight / 2), weight, count[goal]
+
+
+def rank(candidates: Sequence[Placement], circuits: Callable[[Placement], Iterable[stim.Circuit]],
+         cheap: Callable[[Placement], float], choice: str) -> list[Ranked]:
+    """Candidates ranked best first by the proxy summed over ``circuits(candidate)``.
+
+    Beyond :data:`MAX_RANKED` candidates only those nearest ``choice`` by ``cheap`` are ranked.
+    """
+    pool = list(candidates)
+    if len(pool) > MAX_RANKED:
+        pool.sort(key=lambda c: (cheap(c), c))
+        if choice == "worst":
+            pool = pool[-MAX_RANKED:]
+        elif choice == "median":
+            mid = len(pool) // 2
+            pool = pool[max(0, mid - MAX_RANKED // 2):mid + MAX_RANKED // 2]
+        else:
+            pool = pool[:MAX_RANKED]
+    ranked = []
+    for candidate in pool:
+        total, weight, paths = 0.0, math.inf, 0
+        for circuit in circuits(candidate):
+            dem = circuit.detector_error_model(decompose_errors=True, ignore_decomposition_failures=True)
+            proxy, w, n = logical_proxy(dem)
+            total += proxy
+            if w < weight:
+                weight, paths = w, n
+            elif w == weight:
+                paths += n
+        ranked.append(Ranked(candidate, total, weight, paths))
+    ranked.sort(key=lambda r: (r.proxy, r.qubits))
+    return ranked
+
+
+def pick(ranked: Sequence[Ranked], choice: str) -> Ranked:
+    """The best, worst or median of ``ranked`` (best first)."""
+    if choice == "worst":
+        return ranked[-1]
+    if choice == "median":
+        return ranked[(len(ranked) - 1) // 2]
+    return ranked[0]
