@@ -204,6 +204,13 @@ def _positive_number(flag: str, what: str, largest: float) -> Callable[[str], fl
     return parse
 
 
+def _placement_choice(text: str | None) -> str | list[str] | None:
+    """``--placement``: best | worst | median, or comma-separated device qubit ids."""
+    if text is None or text in ("best", "worst", "median"):
+        return text
+    return [q.strip() for q in text.split(",")] if "," in text else text
+
+
 def cmd_forecast(args: argparse.Namespace) -> int:
     import json
 
@@ -217,7 +224,7 @@ def cmd_forecast(args: argparse.Namespace) -> int:
     result = forecast(args.device, code=args.code, distances=args.distances, basis=args.basis,
                       decoder=args.decoder, targets=targets, budget_seconds=args.budget_seconds, work=args.work,
                       workers=args.workers, seed=args.seed, out=args.out, improve=improve, method=args.method,
-                      progress=not args.quiet)
+                      progress=not args.quiet, placement=_placement_choice(args.placement))
     if args.format == "json":
         print(json.dumps(result.to_json(), indent=2, allow_nan=False))
     else:
@@ -304,7 +311,10 @@ def build_parser() -> argparse.ArgumentParser:
                          "on any machine")
     fc.add_argument("--improve", type=_improvement, action="append", metavar="PARAM=FACTOR",
                     help="what-if: scale t1_us/t2_us (factor on 1/T), gate_1q_error, gate_2q_error, readout_error, "
-                         "reset_error, or noise (all of them together); repeatable")
+                         "reset_error, link_error (couplers marked link), zz_khz, or noise (all but link_error and "
+                         "zz_khz together); repeatable")
+    fc.add_argument("--placement", help="on a device with a coupling graph: best (default), worst or median "
+                                        "placement by the proxy, or device qubit ids, comma-separated")
     fc.add_argument("--method", choices=["auto", "direct", "extrapolated", "stratified"], default="auto",
                     help="how each distance is estimated (default: auto: direct where it reaches "
                          "100 failures in the budget, else stratified by fault count)")

@@ -70,6 +70,8 @@ class NoiseModel(ABC):
     option_specs: ClassVar[dict[str, OptionSpec]] = {}
     #: A study key naming a file the model's options come from (``device``), or ``None``.
     source_key: ClassVar[str | None] = None
+    #: Study keys that change what :meth:`options_from_source` reads from the file (``placement`` of a device).
+    source_overrides: ClassVar[tuple[str, ...]] = ()
     #: Whether :meth:`round_duration_ns` gives the physical duration of a syndrome round.
     has_round_duration: ClassVar[bool] = False
     #: Whether the noise acts once (before perfect syndrome extraction) instead of in every round.
@@ -83,8 +85,9 @@ class NoiseModel(ABC):
         return {"noise": self.name, "p": self.p, "noise_options": dict(self.chosen)}
 
     @classmethod
-    def options_from_source(cls, path: Path) -> dict[str, str]:
-        """The options read from the file named by the study's :attr:`source_key`."""
+    def options_from_source(cls, path: Path, **overrides: Any) -> dict[str, str]:
+        """The options read from the file named by the study's :attr:`source_key` (with the study's
+        :attr:`source_overrides` keys where given)."""
         raise NotImplementedError(f"noise model {cls.name!r} reads no file")
 
     @classmethod

@@ -54,7 +54,13 @@ from typing import Any
 
 from codebench.codes import CODE_FAMILIES
 from codebench.errors import DeviceFileError, not_allowed
-from codebench.noise.geometry import Geometry, pair_marks, parse_coupling, qubit_marks, zz_rate
+from codebench.noise.geometry import (
+    Geometry,
+    pair_marks,
+    parse_coupling,
+    qubit_marks,
+    zz_rate,
+)
 
 QUBIT_KEYS = ("t1_us", "t2_us", "gate_1q_error", "readout_error", "readout_error_0to1",
               "readout_error_1to0", "reset_error")

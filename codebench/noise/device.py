@@ -51,7 +51,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from pathlib import Path
-from typing import ClassVar
+from typing import Any, ClassVar
 
 import stim
 
@@ -64,8 +64,17 @@ from codebench.noise.calibration import (
     QubitCalibration,
     device_from_json,
     load_device,
+    parse_device,
 )
-from codebench.noise.placement import Placement, Ranked, embeddings, interaction_graph, pick, rank, unplaced_problem
+from codebench.noise.placement import (
+    Placement,
+    Ranked,
+    embeddings,
+    interaction_graph,
+    pick,
+    rank,
+    unplaced_problem,
+)
 from codebench.options import OptionSpec
 
 #: Ranked placements per (device content, code, distance), shared by every model of one process.
@@ -144,10 +153,19 @@ class DeviceNoise(NoiseModel):
         self._map: dict[int, str | None] = {}
         self._zz_pairs: list[tuple[int, int, float]] = []
 
+    source_overrides: ClassVar[tuple[str, ...]] = ("placement",)
+
     @classmethod
-    def options_from_source(cls, path: Path) -> dict[str, str]:
-        """The device file at ``path``, checked and in canonical form (its content defines the point)."""
-        return {"device": load_device(path).canonical_json()}
+    def options_from_source(cls, path: Path, **overrides: Any) -> dict[str, str]:
+        """The device file at ``path``, checked and in canonical form (its content defines the point).
+
+        A study's ``placement`` replaces the file's (best / worst / median or a list of device qubits).
+        """
+        device = load_device(path)
+        if "placement" in overrides:
+            data = dict(device.data, placement=overrides["placement"])
+            device = parse_device(data, f"{path} with the study's placement")
+        return {"device": device.canonical_json()}
 
     @classmethod
     def display_options(cls, options: Mapping[str, str]) -> dict[str, str]:

@@ -3,10 +3,13 @@
 **Embeddings.** The code's interaction graph has its qubits as nodes and one edge per pair that
 shares a two-qubit gate anywhere in the memory circuit. A placement maps the code's qubits one to
 one onto usable device qubits so that every edge lands on a usable coupler: a subgraph
-monomorphism of the interaction graph into the usable coupling graph, found with networkx's VF2
-matcher (Cordella, Foggia, Sansone, Vento, IEEE TPAMI 26, 1367 (2004)). On a lattice this finds the
-translations and the lattice's rotations and reflections of the patch, and any other way the
-graph fits; ``tests/test_placement.py`` checks the count against an independent brute-force search.
+monomorphism of the interaction graph into the usable coupling graph, found by a backtracking
+search that places the code's qubits in a connected order (each next qubit among the common
+neighbours of its placed partners). On a lattice this finds the translations and the lattice's
+rotations and reflections of the patch, and any other way the graph fits; ``tests/test_placement.py``
+checks the set against networkx's VF2 matcher (Cordella, Foggia, Sansone, Vento, IEEE TPAMI 26,
+1367 (2004)) and, for the rotated surface code on a square grid, against translations x the eight
+symmetries of the square.
 
 **Proxy of the logical error** (:func:`logical_proxy`), from the placed circuit's detector error
 model (rounds = d, both memory bases of the family): each graphlike mechanism is an edge between
@@ -74,50 +77,62 @@ def interaction_graph(family: CodeFamily, distance: int, gate_set: GateSet) -> t
     return qubits, sorted(pairs)
 
 
-def _graphs(geometry: Geometry, qubits: Sequence[int], pairs: Sequence[tuple[int, int]]) -> tuple[object, object]:
-    import networkx as nx
+def _search(geometry: Geometry, qubits: Sequence[int], pairs: Sequence[tuple[int, int]],
+            limit: int) -> list[Placement]:
+    """Backtracking search for placements, code qubits taken in a connected order."""
+    adj: dict[str, set[str]] = {q: set() for q in geometry.nodes if q not in geometry.dead_qubits}
+    for a, b in geometry.usable_edges():
+        adj[a].add(b)
+        adj[b].add(a)
+    need: dict[int, set[int]] = {q: set() for q in qubits}
+    for a, b in pairs:
+        need[a].add(b)
+        need[b].add(a)
+    if len(qubits) > len(adj) or not qubits:
+        return []
+    order = [max(qubits, key=lambda q: (len(need[q]), -q))]
+    while len(order) < len(qubits):
+        seen = set(order)
+        order.append(max((q for q in qubits if q not in seen), key=lambda q: (len(need[q] & seen), len(need[q]), -q)))
+    hosts = sorted(adj)
+    found: list[Placement] = []
+    place: dict[int, str] = {}
+    used: set[str] = set()
 
-    host = nx.Graph()
-    host.add_nodes_from(q for q in geometry.nodes if q not in geometry.dead_qubits)
-    host.add_edges_from(geometry.usable_edges())
-    pattern = nx.Graph()
-    pattern.add_nodes_from(qubits)
-    pattern.add_edges_from(pairs)
-    return host, pattern
-
-
-def _could_fit(host: object, pattern: object) -> bool:
-    """Quick necessary conditions: enough qubits, couplers and qubits of each degree."""
-    hosts = sorted((d for _, d in host.degree), reverse=True)  # type: ignore[attr-defined]
-    needs = sorted((d for _, d in pattern.degree), reverse=True)  # type: ignore[attr-defined]
-    if len(needs) > len(hosts) or pattern.number_of_edges() > host.number_of_edges():  # type: ignore[attr-defined]
+    def extend(i: int) -> bool:
+        if i == len(order):
+            found.append(tuple(place[q] for q in qubits))
+            return len(found) >= limit
+        q = order[i]
+        anchors = [place[n] for n in need[q] if n in place]
+        options = set(adj[anchors[0]]) if anchors else set(hosts)
+        for a in anchors[1:]:
+            options &= adj[a]
+        for c in sorted(options - used):
+            if len(adj[c]) < len(need[q]):
+                continue
+            place[q] = c
+            used.add(c)
+            stop = extend(i + 1)
+            del place[q]
+            used.discard(c)
+            if stop:
+                return True
         return False
-    return all(h >= n for h, n in zip(hosts, needs))
+
+    extend(0)
+    return sorted(found)
 
 
 def embeddings(geometry: Geometry, qubits: Sequence[int], pairs: Sequence[tuple[int, int]],
                limit: int = MAX_EMBEDDINGS) -> list[Placement]:
     """Every placement (device qubit per code qubit, in ``qubits`` order), up to ``limit``, sorted."""
-    from networkx.algorithms.isomorphism import GraphMatcher
-
-    host, pattern = _graphs(geometry, qubits, pairs)
-    if not _could_fit(host, pattern):
-        return []
-    found: list[Placement] = []
-    for mapping in GraphMatcher(host, pattern).subgraph_monomorphisms_iter():
-        inverse = {code: dev for dev, code in mapping.items()}
-        found.append(tuple(inverse[q] for q in qubits))
-        if len(found) >= limit:
-            break
-    return sorted(found)
+    return _search(geometry, qubits, pairs, limit)
 
 
 def fits(geometry: Geometry, qubits: Sequence[int], pairs: Sequence[tuple[int, int]]) -> bool:
     """Whether at least one placement exists."""
-    from networkx.algorithms.isomorphism import GraphMatcher
-
-    host, pattern = _graphs(geometry, qubits, pairs)
-    return _could_fit(host, pattern) and GraphMatcher(host, pattern).subgraph_is_monomorphic()
+    return bool(_search(geometry, qubits, pairs, 1))
 
 
 def largest_fitting(geometry: Geometry, family: CodeFamily, gate_set: GateSet, below: int) -> int | None:
