@@ -85,9 +85,9 @@ def _search(geometry: Geometry, qubits: Sequence[int], pairs: Sequence[tuple[int
         adj[a].add(b)
         adj[b].add(a)
     need: dict[int, set[int]] = {q: set() for q in qubits}
-    for a, b in pairs:
-        need[a].add(b)
-        need[b].add(a)
+    for i, j in pairs:
+        need[i].add(j)
+        need[j].add(i)
     if len(qubits) > len(adj) or not qubits:
         return []
     order = [max(qubits, key=lambda q: (len(need[q]), -q))]
