@@ -236,6 +236,40 @@ def cmd_forecast(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_placements(args: argparse.Namespace) -> int:
+    from codebench.figures.chip import write_chip_figure
+    from codebench.forecast.placements import (
+        COLOUR_KEYS,
+        placements_report,
+        placements_text,
+    )
+    from codebench.noise.placement import interaction_graph
+
+    improve: dict[str, float] = {}
+    for name, factor in args.improve or []:
+        improve[name] = improve.get(name, 1.0) * factor
+    out = Path(args.out)
+    if out.exists() and not out.is_dir():
+        raise ConfigError(not_allowed("--out", str(out), "a folder (or a path that does not exist yet)"))
+    report = placements_report(args.device, args.code, args.distance, top=args.top, sample=args.sample,
+                               shots=args.shots, seed=args.seed, improve=improve,
+                               placement=_placement_choice(args.placement), progress=not args.quiet)
+    print(placements_text(report))
+    from codebench.codes import CODE_FAMILIES
+
+    family = CODE_FAMILIES[args.code]
+    qubits, pairs = interaction_graph(family, args.distance, "cz" if report.device.native_2q == "cz" else "cx")
+    used_pairs = [(report.chosen[qubits.index(a)], report.chosen[qubits.index(b)]) for a, b in pairs]
+    out.mkdir(parents=True, exist_ok=True)
+    png, svg = write_chip_figure(
+        report.device, report.chosen, used_pairs, args.colour_by, COLOUR_KEYS[args.colour_by],
+        f"{args.code} d={args.distance} on {report.device.name}",
+        f"{report.choice} of {report.candidates} placements by the logical-error proxy",
+        out / f"placements_{args.code}_d{args.distance}")
+    print(f"wrote {png}, {svg}", file=sys.stderr)
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="codebench", description="Logical-qubit memory experiments: sample, decode, fit.")
     parser.add_argument("--debug", action="store_true",
@@ -324,6 +358,28 @@ def build_parser() -> argparse.ArgumentParser:
     fc.add_argument("--seed", type=_bounded_int("--seed", 0, SEED_LIMIT - 1), default=20260101, help="seed of the sampling (default: 20260101)")
     fc.add_argument("--quiet", action="store_true", help="no progress lines")
     fc.set_defaults(func=cmd_forecast)
+
+    pl = sub.add_parser("placements", help="rank the placements of a code on a device's qubits; draw the chip")
+    pl.add_argument("device", help="device calibration file (TOML or JSON) with a [coupling] graph")
+    pl.add_argument("--code", default="rotated_surface", help="code family (default: rotated_surface)")
+    pl.add_argument("--distance", type=_bounded_int("--distance", 2, 201), required=True, help="code distance")
+    pl.add_argument("--sample", action="store_true",
+                    help="also sample each shown placement (rounds = d) for a per-round rate")
+    pl.add_argument("--shots", type=_bounded_int("--shots", 100, 10**8), default=20_000,
+                    help="shots per sampled placement (default: 20000)")
+    pl.add_argument("--top", type=_bounded_int("--top", 1, 10_000), default=10,
+                    help="best placements shown (the median and the worst are always shown; default: 10)")
+    pl.add_argument("--colour-by", choices=["t1_us", "t2_us", "readout_error", "gate_1q_error", "reset_error"],
+                    default="t1_us", help="per-qubit number that colours the chip (default: t1_us)")
+    pl.add_argument("--placement", help="which placement the figure draws: best (default), worst, median, or "
+                                        "device qubit ids, comma-separated")
+    pl.add_argument("--improve", type=_improvement, action="append", metavar="PARAM=FACTOR",
+                    help="what-if edits of the device, as for forecast; repeatable")
+    pl.add_argument("--out", default=".", help="folder for placements_<code>_d<D>.png/.svg (default: .)")
+    pl.add_argument("--seed", type=_bounded_int("--seed", 0, SEED_LIMIT - 1), default=1,
+                    help="seed of the sampling (default: 1)")
+    pl.add_argument("--quiet", action="store_true", help="no progress lines")
+    pl.set_defaults(func=cmd_placements)
     return parser
 
 
