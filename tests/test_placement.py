@@ -345,3 +345,42 @@ def test_placement_choices_best_worst_median_and_explicit() -> None:
     assert model_of(dict(data, placement=explicit)).placement("rotated_surface", 3) == tuple(explicit)
     with pytest.raises(DeviceFileError, match="placement must list 17 device qubits"):
         noisy_circuit(point(dict(data, placement=explicit[:-1])))
+
+
+# --------------------------------------------------------------------------- commands
+
+
+def test_forecast_uses_the_best_placement_and_reports_its_qubits(tmp_path: Path) -> None:
+    from codebench.forecast import forecast
+    from codebench.forecast.render import forecast_table
+
+    # A line of 9 qubits, the middle one 10x worse in readout: d = 3 (5 qubits) avoids it where it can
+    # (it cannot: every 5-qubit stretch of 9 holds q0_4), d = 5 takes all nine.
+    data = grid_device(1, 9, qubits=[{"id": "q0_1", "readout_error": 0.15}])
+    result = forecast(parse_device(data), code="repetition", distances=(3, 5), work=1e6, workers=1)
+    document = result.to_json()
+    assert set(document["placements"]) == {"3", "5"}
+    assert "q0_1" not in document["placements"]["3"]          # the best stretch avoids the bad qubit
+    assert sorted(document["placements"]["5"]) == sorted(f"q0_{c}" for c in range(9))
+    assert "d = 3 on device qubits" in forecast_table(result)
+    assert result.break_even.qubits_considered == 9          # the device's usable qubits
+
+
+def test_placements_command_table_sampling_and_figure(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    from codebench.cli import main
+
+    device = Path(__file__).parents[1] / "configs" / "devices" / "larkspur_grid.toml"
+    out = tmp_path / "figs"
+    assert main(["placements", str(device), "--distance", "3", "--sample", "--shots", "2000", "--top", "2",
+                 "--out", str(out), "--quiet", "--colour-by", "readout_error"]) == 0
+    printed = capsys.readouterr().out
+    assert "rank" in printed and "per round" in printed and "chosen (best)" in printed
+    assert (out / "placements_rotated_surface_d3.png").stat().st_size > 10_000
+    assert (out / "placements_rotated_surface_d3.svg").exists()
+    # A device without a coupling graph: one line, exit 2, nothing written.
+    bare = Path(__file__).parents[1] / "configs" / "devices" / "larkspur_goal.toml"
+    empty = tmp_path / "none"
+    assert main(["placements", str(bare), "--distance", "3", "--out", str(empty)]) == 2
+    err = [line for line in capsys.readouterr().err.splitlines() if line.strip()]
+    assert len(err) == 1 and "[coupling] is missing" in err[0]
+    assert not empty.exists()

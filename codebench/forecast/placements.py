@@ -134,8 +134,8 @@ def placements_text(report: PlacementsReport) -> str:
     lines = [
         f"Placements of {report.code} d={report.distance} on {dev.name}: {report.candidates} candidates on "
         f"{usable} usable of {len(dev.geometry.nodes)} qubits",
-        "proxy: N exp(-W/2) of the lightest logical failure paths (W in nats, summed over both bases; "
-        "lower is better)",
+        "proxy: sum over error mechanisms of exp(-W/2), W the weight (nats) of the lightest logical failure "
+        "through each, both bases; lower is better",
         "",
     ]
     sampled = any(r.shots for r in report.rows)

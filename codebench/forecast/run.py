@@ -424,7 +424,8 @@ def _assemble(context: Context, sampled: dict[str, list[Sampled]], device_file: 
         per_basis={b: tuple(r) for b, r in per_basis.items()} if len(per_basis) > 1 else None,
         lambda_fit=fit, lambda_pairs=tuple(pairs), constant_lambda=problem is None,
         targets=tuple(target_rows),
-        break_even=break_even(context.device, round_us, rows),
+        break_even=break_even(context.device, round_us, rows,
+                              [q for q in context.device.geometry.nodes if q not in context.device.geometry.dead_qubits]),
         budget=BudgetSummary(
             seconds=float(request.budget_seconds), work=context.budget.total, work_spent=context.budget.spent,
             hard_limit_reached=bool(context.budget.cut_short), cut_short=tuple(context.budget.cut_short),

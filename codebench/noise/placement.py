@@ -14,12 +14,15 @@ symmetries of the square.
 **Proxy of the logical error** (:func:`logical_proxy`), from the placed circuit's detector error
 model (rounds = d, both memory bases of the family): each graphlike mechanism is an edge between
 its detectors (or a detector and the boundary) with weight w = ln((1 - p) / p), parallel mechanisms
-merged; the cheapest logical failure is the lightest boundary-to-boundary path that flips the
-observable (a shortest path on the graph doubled by observable parity, Dijkstra), of weight W, and N
-is the number of such lightest paths. The proxy is N exp(-W / 2): a decoder that matches to the
-lightest correction fails once about half of the path's mechanisms fire, so the leading failure
-term scales as exp(-W / 2) (Dennis, Kitaev, Landahl, Preskill, J. Math. Phys. 43, 4452 (2002),
-Sec. IV; the combinatorial factor is the same for every placement of one code and is left out).
+merged. A logical failure path runs from boundary to boundary and flips the observable; W_e, the
+weight of the lightest such path through mechanism e, comes from two shortest-path searches on the
+graph doubled by observable parity (Dijkstra). The proxy is the sum over mechanisms of
+exp(-W_e / 2): a decoder that matches to the lightest correction fails once about half of a path's
+mechanisms fire, so a path of weight W fails as exp(-W / 2) to leading order (Dennis, Kitaev,
+Landahl, Preskill, J. Math. Phys. 43, 4452 (2002), Sec. IV; combinatorial factors are the same for
+every placement of one code and are left out). Summing over every mechanism, not only over the
+lightest paths, lets a bad qubit count wherever it sits: a noisy measure qubit's timelike
+mechanisms lie on no lightest path, but make the paths through them cheaper.
 It is a ranking, not a rate: ``codebench placements --sample`` samples the rates, and the tests
 check that the ranking of a clean placement and one with a 10x worse qubit agrees with sampling.
 Mechanisms touching three or more detectors after decomposition are left out.
@@ -189,32 +192,9 @@ def _graph_of(dem: stim.DetectorErrorModel) -> tuple[int, dict[tuple[int, int, i
     return boundary, edges
 
 
-def logical_proxy(dem: stim.DetectorErrorModel) -> tuple[float, float, int]:
-    """(proxy N exp(-W/2), W, N) of a detector error model (see the module docstring).
-
-    Three mechanisms of probability 0.1 in a chain from boundary to boundary, the first flipping the
-    observable: the only logical failure is all three (W = 3 ln 9, N = 1):
-
-    >>> dem = stim.DetectorErrorModel('''
-    ... error(0.1) D0 L0
-    ... error(0.1) D0 D1
-    ... error(0.1) D1
-    ... ''')
-    >>> proxy, weight, paths = logical_proxy(dem)
-    >>> round(weight, 6) == round(3 * math.log(9), 6), paths
-    (True, 1)
-    """
-    boundary, edges = _graph_of(dem)
-    adjacency: dict[int, list[tuple[int, int, float]]] = {}
-    for (u, v, flip), p in edges.items():
-        if p <= 0:
-            continue
-        w = math.log((1 - p) / p) if p < 0.5 else 0.0
-        adjacency.setdefault(u, []).append((v, flip, w))
-        adjacency.setdefault(v, []).append((u, flip, w))
-    start, goal = (boundary, 0), (boundary, 1)
+def _distances(adjacency: dict[int, list[tuple[int, int, float]]], start: tuple[int, int]) -> dict[tuple[int, int], float]:
+    """Dijkstra on the graph doubled by observable parity: lightest weight from ``start`` to every (node, parity)."""
     dist: dict[tuple[int, int], float] = {start: 0.0}
-    count: dict[tuple[int, int], int] = {start: 1}
     heap: list[tuple[float, tuple[int, int]]] = [(0.0, start)]
     done: set[tuple[int, int]] = set()
     while heap:
@@ -222,20 +202,56 @@ def logical_proxy(dem: stim.DetectorErrorModel) -> tuple[float, float, int]:
         if node in done:
             continue
         done.add(node)
-        if node == goal:
-            break
         for v, flip, w in adjacency.get(node[0], []):
             nxt = (v, node[1] ^ flip)
-            nd = d + w
-            if nxt not in dist or nd < dist[nxt] - 1e-9 * max(1.0, dist[nxt]):
-                dist[nxt], count[nxt] = nd, count[node]
-                heapq.heappush(heap, (nd, nxt))
-            elif abs(nd - dist[nxt]) <= 1e-9 * max(1.0, dist[nxt]) and nxt not in done:
-                count[nxt] += count[node]
-    if goal not in dist:
+            if d + w < dist.get(nxt, math.inf):
+                dist[nxt] = d + w
+                heapq.heappush(heap, (d + w, nxt))
+    return dist
+
+
+def logical_proxy(dem: stim.DetectorErrorModel) -> tuple[float, float, int]:
+    """(proxy, W, N) of a detector error model (see the module docstring).
+
+    W_e is the weight of the lightest logical failure path through mechanism e; the proxy is the sum
+    of exp(-W_e / 2) over every mechanism, W the smallest W_e and N how many mechanisms share it.
+    Three mechanisms of probability 0.1 in a chain from boundary to boundary, the first flipping the
+    observable: the only logical failure is all three (W_e = 3 ln 9 for each; proxy 3 / 27):
+
+    >>> dem = stim.DetectorErrorModel('''
+    ... error(0.1) D0 L0
+    ... error(0.1) D0 D1
+    ... error(0.1) D1
+    ... ''')
+    >>> proxy, weight, paths = logical_proxy(dem)
+    >>> round(proxy, 12), round(weight, 9) == round(3 * math.log(9), 9), paths
+    (0.111111111111, True, 3)
+    """
+    boundary, edges = _graph_of(dem)
+    adjacency: dict[int, list[tuple[int, int, float]]] = {}
+    weighted: list[tuple[int, int, int, float]] = []
+    for (u, v, flip), p in edges.items():
+        if p <= 0:
+            continue
+        w = math.log((1 - p) / p) if p < 0.5 else 0.0
+        adjacency.setdefault(u, []).append((v, flip, w))
+        adjacency.setdefault(v, []).append((u, flip, w))
+        weighted.append((u, v, flip, w))
+    start = _distances(adjacency, (boundary, 0))
+    goal = _distances(adjacency, (boundary, 1))
+    through = []
+    for u, v, flip, w in weighted:
+        best = math.inf
+        for a, b in ((u, v), (v, u)):
+            for parity in (0, 1):
+                best = min(best, start.get((a, parity), math.inf) + w + goal.get((b, parity ^ flip), math.inf))
+        if math.isfinite(best):
+            through.append(best)
+    if not through:
         return 0.0, math.inf, 0
-    weight = dist[goal]
-    return count[goal] * math.exp(-weight / 2), weight, count[goal]
+    weight = min(through)
+    paths = sum(1 for t in through if t <= weight * (1 + 1e-9))
+    return math.fsum(math.exp(-t / 2) for t in through), weight, paths
 
 
 def rank(candidates: Sequence[Placement], circuits: Callable[[Placement], Iterable[stim.Circuit]],
