@@ -27,7 +27,8 @@ from codebench.noise.device import DeviceNoise
 from codebench.noise.placement import Ranked
 from codebench.stats import per_round, wilson_interval
 
-__all__ = ["COLOUR_KEYS", "PlacementRow", "PlacementsReport", "placements_report", "placements_text"]
+__all__ = ["COLOUR_KEYS", "PlacementRow", "PlacementsReport", "placements_report", "placements_text",
+           "sampled_failures"]
 
 #: Per-qubit numbers the chip figure can colour by, with their units.
 COLOUR_KEYS = {"t1_us": "T1 (us)", "t2_us": "T2 (us)", "readout_error": "readout error (probability)",
@@ -104,7 +105,7 @@ def placements_report(device_file: str | Path | Device, code: str, distance: int
         row = PlacementRow(index + 1, r.qubits, r.proxy, r.weight)
         if sample:
             circuit = model.decorate_on(ideal, r.qubits)
-            failures = _failures(circuit, family.default_decoder, shots, seed * 1_000_003 + index)
+            failures = sampled_failures(circuit, family.default_decoder, shots, seed * 1_000_003 + index)
             low, high = wilson_interval(failures, shots)
             row = PlacementRow(index + 1, r.qubits, r.proxy, r.weight, shots, failures,
                                per_round(failures / shots, distance), per_round(low, distance),
@@ -114,7 +115,8 @@ def placements_report(device_file: str | Path | Device, code: str, distance: int
     return PlacementsReport(device, code, distance, len(ranked), tuple(rows), chosen, choice)
 
 
-def _failures(circuit: object, decoder_name: str, shots: int, seed: int) -> int:
+def sampled_failures(circuit: object, decoder_name: str, shots: int, seed: int) -> int:
+    """Logical failures in ``shots`` shots of ``circuit`` decoded with ``decoder_name`` (stim sampler, seeded)."""
     import stim
 
     assert isinstance(circuit, stim.Circuit)
@@ -142,7 +144,7 @@ def placements_text(report: PlacementsReport) -> str:
     header = ["rank", "proxy", "W", *(["per round", "95% interval"] if sampled else []), "device qubits"]
     table = [header]
     for r in report.rows:
-        cells = [str(r.rank), f"{r.proxy:.3g}", f"{r.weight:.2f}" if math.isfinite(r.weight) else "inf"]
+        cells = [str(r.rank), f"{r.proxy:.4g}", f"{r.weight:.2f}" if math.isfinite(r.weight) else "inf"]
         if sampled:
             cells += [f"{r.per_round:.3g}" if r.per_round is not None else "-",
                       f"[{r.low:.2g}, {r.high:.2g}]" if r.low is not None and r.high is not None else "-"]
