@@ -11,7 +11,7 @@ import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Callable, NoReturn, Sequence
 
-from codebench.build import noisy_circuit
+from codebench.build import noise_model, noisy_circuit
 from codebench.errors import (
     CodebenchError,
     ConfigError,
@@ -79,6 +79,18 @@ def cmd_sweep(args: argparse.Namespace) -> int:
 
     sweep = load_sweep(args.config)
     out = Path(args.out) if args.out else sweep.output_dir_default
+    notes: dict[str, None] = {}
+    seen: set[tuple[object, ...]] = set()
+    for point in sweep.points:  # where each patch sits on a device (a patch that does not fit stops here)
+        if (point.noise, point.noise_options, point.code, point.distance) in seen:
+            continue
+        seen.add((point.noise, point.noise_options, point.code, point.distance))
+        note = noise_model(point).qubit_note(point.code, point.distance)
+        if note is not None:
+            notes[note] = None
+    if not args.quiet:
+        for note in notes:
+            print(note, file=sys.stderr)
     frame = run_sweep(sweep, out=out, workers=args.workers, progress=not args.quiet, scheduler=args.scheduler)
     print(summary_table(frame))
     print(f"\nwrote {out / 'results.csv'} and {out / 'results.sqlite'}")

@@ -384,3 +384,33 @@ def test_placements_command_table_sampling_and_figure(tmp_path: Path, capsys: py
     err = [line for line in capsys.readouterr().err.splitlines() if line.strip()]
     assert len(err) == 1 and "[coupling] is missing" in err[0]
     assert not empty.exists()
+
+
+def test_sweep_study_placement_key(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    import json
+
+    from codebench.cli import main
+    from codebench.config import load_sweep
+
+    device = Path(__file__).parents[1] / "configs" / "devices" / "larkspur_grid.toml"
+    body = ('name = "s"\nseed = 1\n[stopping]\nshot_budget = 200\n[[study]]\ncode = "rotated_surface"\n'
+            f'distances = [3]\nrounds = "d"\nnoise = "device"\ndevice = "{device}"\ndecoders = ["mwpm"]\n')
+    (tmp_path / "worst.toml").write_text(body + 'placement = "worst"\n')
+    sweep = load_sweep(tmp_path / "worst.toml")
+    document = json.loads(dict(sweep.points[0].noise_options)["device"])
+    assert document["placement"] == "worst"
+    worst = model_of(document).placement("rotated_surface", 3)
+    assert worst == model_of(document).ranked_placements("rotated_surface", 3)[-1].qubits
+    # The run names the device qubits it uses.
+    assert main(["sweep", str(tmp_path / "worst.toml"), "--out", str(tmp_path / "o"), "--workers", "1"]) == 0
+    assert f"rotated_surface d=3 on device qubits {', '.join(worst)} (worst of" in capsys.readouterr().err
+    (tmp_path / "bad.toml").write_text(body + 'placement = "luckiest"\n')
+    assert main(["sweep", str(tmp_path / "bad.toml"), "--out", str(tmp_path / "b")]) == 2
+    line = capsys.readouterr().err.strip()
+    assert "placement" in line and "'luckiest'" in line and "'best', 'worst', 'median'" in line
+    assert not (tmp_path / "b").exists()
+    # Another noise model does not take it.
+    (tmp_path / "si.toml").write_text(body.replace('noise = "device"', 'noise = "si1000"\np = [0.001]').replace(
+        f'device = "{device}"\n', "") + 'placement = "best"\n')
+    assert main(["sweep", str(tmp_path / "si.toml"), "--out", str(tmp_path / "c")]) == 2
+    assert "placement is not used with noise = 'si1000'" in capsys.readouterr().err

@@ -103,6 +103,10 @@ class NoiseModel(ABC):
         """The noisy stim circuit for ``ideal``."""
         return render(ideal, self.layer_noise)
 
+    def qubit_note(self, code: str, distance: int) -> str | None:
+        """Where the code's qubits sit, for the start of a run (a device: its own qubits), or ``None``."""
+        return None
+
     def circuit_gate_set(self) -> GateSet:
         """The gate set circuits are compiled to (a device may choose its own)."""
         return self.gate_set

@@ -225,6 +225,19 @@ class DeviceNoise(NoiseModel):
             return choice
         return pick(self.ranked_placements(code, distance), choice).qubits
 
+    def qubit_note(self, code: str, distance: int) -> str | None:
+        """``"<code> d=<d> on device qubits a, b, ... (best of N placements)"``, or ``None`` without a map."""
+        qubits = self.placement(code, distance)
+        if qubits is None:
+            return None
+        if self.device.layout_map(code, distance) is not None:
+            how = "[[layouts]]"
+        elif isinstance(self.device.placement, str):
+            how = f"{self.device.placement} of {len(self.ranked_placements(code, distance))} placements"
+        else:
+            how = "the device's placement list"
+        return f"{code} d={distance} on device qubits {', '.join(qubits)} ({how})"
+
     def ranked_placements(self, code: str, distance: int) -> list[Ranked]:
         """Every placement of the code on the device's usable qubits, best first (at the device's own numbers)."""
         dev = self.device
