@@ -403,7 +403,7 @@ def test_sweep_study_placement_key(tmp_path: Path, capsys: pytest.CaptureFixture
     assert worst == model_of(document).ranked_placements("rotated_surface", 3)[-1].qubits
     # The run names the device qubits it uses.
     assert main(["sweep", str(tmp_path / "worst.toml"), "--out", str(tmp_path / "o"), "--workers", "1"]) == 0
-    assert f"rotated_surface d=3 on device qubits {', '.join(worst)} (worst of" in capsys.readouterr().err
+    assert f"rotated_surface d=3 on device qubits {', '.join(worst)} (worst placement by the proxy)" in capsys.readouterr().err
     (tmp_path / "bad.toml").write_text(body + 'placement = "luckiest"\n')
     assert main(["sweep", str(tmp_path / "bad.toml"), "--out", str(tmp_path / "b")]) == 2
     line = capsys.readouterr().err.strip()

@@ -160,6 +160,7 @@ def parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[Po
     for d, r in sorted({(d, r) for d in distances for r in rounds[d]}):
         _check_size(family, d, r, bases, at)
 
+    placed = {d: model.options_for(options, code, d) for d in distances}
     points = [
         Point(
             code=code,
@@ -169,7 +170,7 @@ def parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[Po
             noise=noise,
             p=p,
             decoder=decoder,
-            noise_options=options,
+            noise_options=placed[d],
             decoder_options=decoder_options[decoder],
             study=label,
         )

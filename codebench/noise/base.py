@@ -103,6 +103,12 @@ class NoiseModel(ABC):
         """The noisy stim circuit for ``ideal``."""
         return render(ideal, self.layer_noise)
 
+    @classmethod
+    def options_for(cls, options: tuple[tuple[str, str], ...], code: str,
+                    distance: int) -> tuple[tuple[str, str], ...]:
+        """The options of the points of one code and distance (a device: with the patch's placement fixed)."""
+        return options
+
     def qubit_note(self, code: str, distance: int) -> str | None:
         """Where the code's qubits sit, for the start of a run (a device: its own qubits), or ``None``."""
         return None

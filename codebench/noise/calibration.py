@@ -301,7 +301,10 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
         raise r.fail("layouts", raw_layouts, "an array of tables ([[layouts]])")
     for i, entry in enumerate(raw_layouts):
         path = f"layouts[{i}]"
-        table = r.keys(entry, path, ("code", "distance", "qubits"))
+        table = r.keys(entry, path, ("code", "distance", "qubits", "chosen_by"))
+        if "chosen_by" in table and table["chosen_by"] not in PLACEMENT_CHOICES + ("placement",):
+            raise r.fail(f"{path}.chosen_by", table["chosen_by"], "best, worst, median or placement (how "
+                         "codebench chose the qubits; leave it out of hand-written layouts)")
         code, distance, mapped = table.get("code"), table.get("distance"), table.get("qubits")
         if not isinstance(code, str) or code not in CODE_FAMILIES:
             raise r.fail(f"{path}.code", code, "one of " + ", ".join(repr(c) for c in CODE_FAMILIES))

@@ -48,6 +48,7 @@ coupler where given).
 
 from __future__ import annotations
 
+import copy
 import math
 from collections.abc import Mapping
 from pathlib import Path
@@ -67,6 +68,7 @@ from codebench.noise.calibration import (
     parse_device,
 )
 from codebench.noise.placement import (
+    PROXY_ROUNDS,
     Placement,
     Ranked,
     embeddings,
@@ -225,17 +227,43 @@ class DeviceNoise(NoiseModel):
             return choice
         return pick(self.ranked_placements(code, distance), choice).qubits
 
+    @classmethod
+    def options_for(cls, options: tuple[tuple[str, str], ...], code: str,
+                    distance: int) -> tuple[tuple[str, str], ...]:
+        """The device with the placement of ``code`` at ``distance`` written in as a ``[[layouts]]`` entry.
+
+        Placing is done once, where the points are made; the points carry the device qubits they use in
+        their key, and workers read the layout instead of ranking the placements again. A device without
+        a coupling graph, or with a hand-written layout for the code and distance, is left as it is.
+        """
+        given = dict(options)
+        if "device" not in given:
+            return options
+        device = device_from_json(given["device"])
+        if not device.geometry.has_graph or device.layout_map(code, distance) is not None:
+            return options
+        qubits = cls(1.0, device=given["device"]).placement(code, distance)
+        assert qubits is not None
+        data = copy.deepcopy(device.data)
+        chosen = device.placement if isinstance(device.placement, str) else "placement"
+        data["layouts"] = list(data.get("layouts", [])) + [
+            {"code": code, "distance": distance, "qubits": list(qubits), "chosen_by": chosen}]
+        given["device"] = parse_device(data, "<placed device>").canonical_json()
+        return tuple(sorted(given.items()))
+
     def qubit_note(self, code: str, distance: int) -> str | None:
-        """``"<code> d=<d> on device qubits a, b, ... (best of N placements)"``, or ``None`` without a map."""
+        """``"<code> d=<d> on device qubits a, b, ... (best placement)"``, or ``None`` without a map."""
         qubits = self.placement(code, distance)
-        if qubits is None:
-            return None
-        if self.device.layout_map(code, distance) is not None:
-            how = "[[layouts]]"
-        elif isinstance(self.device.placement, str):
-            how = f"{self.device.placement} of {len(self.ranked_placements(code, distance))} placements"
-        else:
-            how = "the device's placement list"
+        if qubits is None or len(qubits) != CODE_FAMILIES[code].qubit_count(distance):
+            return None  # no map, or a layout of the wrong length (the circuit build says so)
+        how = "[[layouts]]"
+        for entry in self.device.data.get("layouts", []):
+            if (entry.get("code"), entry.get("distance")) == (code, distance) and "chosen_by" in entry:
+                how = f"{entry['chosen_by']} placement by the proxy" if entry["chosen_by"] != "placement" \
+                    else "the device's placement list"
+        if self.device.layout_map(code, distance) is None:
+            how = (f"{self.device.placement} of {len(self.ranked_placements(code, distance))} placements by the proxy"
+                   if isinstance(self.device.placement, str) else "the device's placement list")
         return f"{code} d={distance} on device qubits {', '.join(qubits)} ({how})"
 
     def ranked_placements(self, code: str, distance: int) -> list[Ranked]:
@@ -252,7 +280,7 @@ class DeviceNoise(NoiseModel):
                 raise DeviceFileError(f"device {dev.name!r}: "
                                       + unplaced_problem(dev.geometry, family, distance, gate_set))
             own = DeviceNoise(1.0, device=self.device_json)
-            ideals = [family.ideal_circuit(distance, distance, b, gate_set) for b in family.bases]
+            ideals = [family.ideal_circuit(distance, min(distance, PROXY_ROUNDS), b, gate_set) for b in family.bases]
 
             def circuits(candidate: Placement) -> list[stim.Circuit]:
                 return [own.decorate_on(ideal, candidate) for ideal in ideals]

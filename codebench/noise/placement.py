@@ -12,7 +12,9 @@ checks the set against networkx's VF2 matcher (Cordella, Foggia, Sansone, Vento,
 symmetries of the square.
 
 **Proxy of the logical error** (:func:`logical_proxy`), from the placed circuit's detector error
-model (rounds = d, both memory bases of the family): each graphlike mechanism is an edge between
+model (rounds = min(d, 3), both memory bases of the family; three rounds hold every kind of
+mechanism, first round, middle round and final readout, and a qubit's numbers are the same in every
+round, so more rounds repeat the same comparison at a cost growing with d): each graphlike mechanism is an edge between
 its detectors (or a detector and the boundary) with weight w = ln((1 - p) / p), parallel mechanisms
 merged. A logical failure path runs from boundary to boundary and flips the observable; W_e, the
 weight of the lightest such path through mechanism e, comes from two shortest-path searches on the
@@ -49,7 +51,9 @@ from codebench.noise.geometry import Geometry
 
 #: Most embeddings enumerated, and most ranked by the detector-error-model proxy.
 MAX_EMBEDDINGS = 20_000
-MAX_RANKED = 200
+MAX_RANKED = 64
+#: Rounds of the circuits the proxy reads: min(d, PROXY_ROUNDS).
+PROXY_ROUNDS = 3
 
 Placement = tuple[str, ...]
 
