@@ -276,7 +276,7 @@ def cmd_placements(args: argparse.Namespace) -> int:
     png, svg = write_chip_figure(
         report.device, report.chosen, used_pairs, args.colour_by, COLOUR_KEYS[args.colour_by],
         f"{args.code} d={args.distance} on {report.device.name}",
-        f"{report.choice} of {report.candidates} placements by the logical-error proxy",
+        f"{report.choice} of {report.found} placements by the logical-error proxy",
         out / f"placements_{args.code}_d{args.distance}")
     print(f"wrote {png}, {svg}", file=sys.stderr)
     return EXIT_OK

@@ -57,6 +57,7 @@ class PlacementsReport:
     code: str
     distance: int
     candidates: int
+    found: int
     rows: tuple[PlacementRow, ...]
     chosen: tuple[str, ...]
     choice: str
@@ -112,7 +113,8 @@ def placements_report(device_file: str | Path | Device, code: str, distance: int
                                per_round(high, distance))
         rows.append(row)
     choice = device.placement if isinstance(device.placement, str) else "explicit"
-    return PlacementsReport(device, code, distance, len(ranked), tuple(rows), chosen, choice)
+    return PlacementsReport(device, code, distance, len(ranked), model.placements_found(code, distance),
+                            tuple(rows), chosen, choice)
 
 
 def sampled_failures(circuit: object, decoder_name: str, shots: int, seed: int) -> int:
@@ -134,8 +136,10 @@ def placements_text(report: PlacementsReport) -> str:
     dev = report.device
     usable = len([q for q in dev.geometry.nodes if q not in dev.geometry.dead_qubits])
     lines = [
-        f"Placements of {report.code} d={report.distance} on {dev.name}: {report.candidates} candidates on "
-        f"{usable} usable of {len(dev.geometry.nodes)} qubits",
+        f"Placements of {report.code} d={report.distance} on {dev.name}: {report.found} found on "
+        f"{usable} usable of {len(dev.geometry.nodes)} qubits"
+        + (f", {report.candidates} ranked (those nearest the {report.choice if report.choice != 'explicit' else 'best'} end of the summed error numbers)"
+           if report.candidates < report.found else ""),
         "proxy: sum over error mechanisms of exp(-W/2), W the weight (nats) of the lightest logical failure "
         "through each, both bases; lower is better",
         "",

@@ -81,6 +81,8 @@ from codebench.options import OptionSpec
 
 #: Ranked placements per (device content, code, distance), shared by every model of one process.
 _RANKED: dict[tuple[str, str, int, str], list[Ranked]] = {}
+#: How many placements were found for the same keys (more than ranked when above MAX_RANKED).
+_FOUND: dict[tuple[str, str, int, str], int] = {}
 
 #: Largest valid total probability of stim's DEPOLARIZE1 / DEPOLARIZE2 and of a flip.
 MAX_DEPOLARIZE1, MAX_DEPOLARIZE2, MAX_FLIP = 0.75, 15 / 16, 0.5
@@ -262,7 +264,7 @@ class DeviceNoise(NoiseModel):
                 how = f"{entry['chosen_by']} placement by the proxy" if entry["chosen_by"] != "placement" \
                     else "the device's placement list"
         if self.device.layout_map(code, distance) is None:
-            how = (f"{self.device.placement} of {len(self.ranked_placements(code, distance))} placements by the proxy"
+            how = (f"{self.device.placement} of {self.placements_found(code, distance)} placements by the proxy"
                    if isinstance(self.device.placement, str) else "the device's placement list")
         return f"{code} d={distance} on device qubits {', '.join(qubits)} ({how})"
 
@@ -293,7 +295,15 @@ class DeviceNoise(NoiseModel):
                               for a, b in pairs))
 
             _RANKED[key] = rank(found, circuits, cheap, choice)
+            _FOUND[key] = len(found)
         return _RANKED[key]
+
+    def placements_found(self, code: str, distance: int) -> int:
+        """How many placements exist (up to the enumeration's limit); the ranked ones may be fewer."""
+        self.ranked_placements(code, distance)
+        dev = self.device
+        return _FOUND[(dev.canonical_json(), code, distance, dev.placement if isinstance(dev.placement, str)
+                       else "best")]
 
     def decorate(self, ideal: IdealCircuit) -> stim.Circuit:
         self._use_map(ideal, self._device_qubits(ideal))
