@@ -162,6 +162,17 @@ def placements(device: Device, code: str, distances: Sequence[int]) -> dict[int,
     return out
 
 
+def _placement_lines(device: Device, request: ForecastRequest, placed: dict[int, tuple[str, ...]]) -> None:
+    """Progress lines: the device qubits of each distance, or that the defaults apply."""
+    for d, qubits in placed.items():
+        print(f"forecast: d = {d} on device qubits {', '.join(qubits)}", file=sys.stderr, flush=True)
+    unused = [d for d in request.distances if d not in placed]
+    if device.qubits and unused:
+        print(f"forecast: the device file lists per-qubit numbers but neither a [coupling] graph nor a [[layouts]] "
+              f"entry for {request.code} d = {', '.join(map(str, unused))}: its defaults apply there",
+              file=sys.stderr, flush=True)
+
+
 def run_forecast(request: ForecastRequest) -> ForecastResult:
     """Run a checked :class:`ForecastRequest`; the result as in :func:`forecast`."""
     request = request.checked()
@@ -173,14 +184,6 @@ def run_forecast(request: ForecastRequest) -> ForecastResult:
         base = load_device(Path(request.device))
     device = place_device(improve_device(base, request.improve, source), request.placement, source)
     placed = placements(device, request.code, request.distances)  # a patch that does not fit stops here
-    if request.progress:
-        for d, qubits in placed.items():
-            print(f"forecast: d = {d} on device qubits {', '.join(qubits)}", file=sys.stderr, flush=True)
-        unused = [d for d in request.distances if d not in placed]
-        if device.qubits and unused:
-            print(f"forecast: the device file lists per-qubit numbers but neither a [coupling] graph nor a [[layouts]] "
-                  f"entry for {request.code} d = {', '.join(map(str, unused))}: its defaults apply there",
-                  file=sys.stderr, flush=True)
     count = request.workers or os.cpu_count() or 1
     tmp: tempfile.TemporaryDirectory[str] | None = None
     out_dir: Path | None = None
@@ -202,6 +205,7 @@ def run_forecast(request: ForecastRequest) -> ForecastResult:
         executor = factory(count)  # ours: closed below, whatever happens
         context = Context(request, device, store, device_file, executor, budget, [], placed)
         if request.progress:
+            _placement_lines(device, request, placed)
             print(f"forecast: plan of {budget.total:.3g} detector-shots of work, about "
                   f"{budget.estimated_seconds(count):.0f} s on {count} worker(s) at the reference rate",
                   file=sys.stderr, flush=True)
