@@ -12,12 +12,13 @@ from typing import Any, Callable, Mapping
 
 import pandas as pd
 
-from codebench.build import size_estimate
+from codebench.build import point_label, size_estimate
 from codebench.codes import get_code_family
 from codebench.config import Sweep, load_sweep, parse_sweep
 from codebench.decoders.plugins import is_spec
 from codebench.engine.cluster import require_packages, scheduler_address
 from codebench.engine.executors import Executor, make_executor
+from codebench.engine.local import leave_if_a_worker_imports_main
 from codebench.engine.progress import Progress
 from codebench.engine.runner import RunPlan, StopSignals, describe, execute
 from codebench.errors import CodebenchError, ConfigError, StoreError, not_allowed
@@ -96,6 +97,7 @@ def run_sweep(
     >>> int(frame.loc[0, "shots"])
     2000
     """
+    leave_if_a_worker_imports_main()
     with StopSignals():
         sweep = as_sweep(config)
         return _run(sweep, out, executor, progress, _cluster_choice(sweep, workers, scheduler), stop_when)
@@ -164,7 +166,7 @@ LARGE_POINT_DETECTORS = 100_000
 def _announce_if_large(point: Point) -> None:
     qubits, detectors = size_estimate(get_code_family(point.code), point.distance, point.rounds, point.basis)
     if detectors > LARGE_POINT_DETECTORS:
-        print(f"building {point.label()}: about {detectors:,} detectors on {qubits:,} qubits "
+        print(f"building {point_label(point)}: about {detectors:,} detectors on {qubits:,} qubits "
               f"(about {detectors / 1e6:.1f} GB while its model is analysed and compiled)", file=sys.stderr)
 
 

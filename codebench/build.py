@@ -18,7 +18,13 @@ from codebench.noise import get_noise_model
 from codebench.noise.base import NoiseModel
 from codebench.records import Point
 
-__all__ = ["family_ideal_circuit", "ideal_circuit", "noise_model", "noisy_circuit", "qubit_count", "size_estimate"]
+__all__ = ["family_ideal_circuit", "ideal_circuit", "noise_model", "noisy_circuit", "point_label", "qubit_count",
+           "size_estimate"]
+
+
+def point_label(point: Point) -> str:
+    """The point's one-line label, its rate named as its noise model names it (``p``, or ``scale``)."""
+    return point.label(get_noise_model(point.noise).rate.short)
 
 
 def noise_model(point: Point) -> NoiseModel:

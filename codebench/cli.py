@@ -7,12 +7,17 @@ traceback), 1 anything else, 130 interrupted (finished batches are kept).
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Callable, NoReturn, Sequence
 
 from codebench.build import noise_model, noisy_circuit
 from codebench.errors import (
+    EXIT_BAD_INPUT,
+    EXIT_FAILURE,
+    EXIT_INTERRUPTED,
+    EXIT_OK,
     CodebenchError,
     ConfigError,
     Interrupted,
@@ -27,7 +32,6 @@ if TYPE_CHECKING:
 
     from codebench.analysis import AnalysisResult
 
-EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
 
 class _Parser(argparse.ArgumentParser):
@@ -129,6 +133,17 @@ def _analysis(args: argparse.Namespace) -> tuple[pd.DataFrame, AnalysisResult]:
     return frame, analyze(frame, targets=args.targets, bootstrap=args.bootstrap, seed=args.seed)
 
 
+def _output_folder(args: argparse.Namespace, what: str) -> Path:
+    """Where ``figures`` / ``report`` write: ``--to``, else the results folder unless that is read-only."""
+    if args.to is not None:
+        return Path(args.to)
+    folder = Path(args.dir)
+    if not os.access(folder, os.W_OK):
+        raise ConfigError(f"the results folder '{folder}' is read-only; give --to FOLDER to write the {what} "
+                          "elsewhere.")
+    return folder
+
+
 def cmd_analyze(args: argparse.Namespace) -> int:
     import json
 
@@ -146,8 +161,9 @@ def cmd_figures(args: argparse.Namespace) -> int:
     from codebench.figures import write_figures
 
     frame, result = _analysis(args)
-    paths = write_figures(Path(args.dir), frame, result)
-    print(f"wrote {len(paths)} files into {Path(args.dir) / 'figures'}")
+    target = _output_folder(args, "figures")
+    paths = write_figures(target, frame, result)
+    print(f"wrote {len(paths)} files into {target / 'figures'}")
     return EXIT_OK
 
 
@@ -155,7 +171,7 @@ def cmd_report(args: argparse.Namespace) -> int:
     from codebench.report import write_report
 
     frame, result = _analysis(args)
-    path = write_report(Path(args.dir), frame, result)
+    path = write_report(Path(args.dir), frame, result, to=_output_folder(args, "report"))
     print(f"wrote {path} and {path.parent / 'summary.md'}")
     return EXIT_OK
 
@@ -282,8 +298,32 @@ def cmd_placements(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+class _VersionAction(argparse.Action):
+    """``--version``: one unwrapped line, then exit 0 (argparse's own action wraps it at 80 columns)."""
+
+    def __call__(self, parser: argparse.ArgumentParser, namespace: argparse.Namespace, values: object,
+                 option_string: str | None = None) -> None:
+        print(_version_line())
+        parser.exit()
+
+
+def _version_line() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    def of(package: str) -> str:
+        try:
+            return version(package)
+        except PackageNotFoundError:
+            return "not installed"
+
+    libraries = ", ".join(f"{name} {of(name)}" for name in ("stim", "pymatching", "ldpc", "numpy"))
+    return f"codebench {of('codebench')} ({libraries}; Python {sys.version.split()[0]})"
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="codebench", description="Logical-qubit memory experiments: sample, decode, fit.")
+    parser.add_argument("--version", action=_VersionAction, nargs=0,
+                        help="print codebench's version and those of the libraries it samples and decodes with")
     parser.add_argument("--debug", action="store_true",
                         help="after an error, also print its traceback (for reports of a bug or a plug-in's fault)")
     sub = parser.add_subparsers(dest="verb", required=True, parser_class=_Parser)
@@ -315,6 +355,9 @@ def build_parser() -> argparse.ArgumentParser:
         verb_parser.add_argument("dir", help="sweep output folder")
         if verb == "analyze":
             verb_parser.add_argument("--format", choices=["table", "json"], default="table")
+        if verb != "analyze":
+            verb_parser.add_argument("--to", metavar="FOLDER",
+                                     help=f"write the {verb} into FOLDER instead of DIR (for read-only results)")
         verb_parser.add_argument("--targets", type=_targets, default=[1e-6, 1e-9, 1e-12],
                                  help="target per-round rates for projections (default: 1e-6,1e-9,1e-12)")
         verb_parser.add_argument("--interval", choices=sorted(INTERVALS), default="wilson",
@@ -412,13 +455,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         _report(args, exc)
         return EXIT_BAD_INPUT
     except (KeyboardInterrupt, Interrupted) as exc:
-        # A progress line on a terminal ends without a newline: start a line of our own.
-        start = "\n" if sys.stderr.isatty() else ""
         # Interrupted comes from a running sweep, which stores each batch as it finishes; a Ctrl-C
         # before that (reading and checking the input) has written nothing.
         what = ("finished batches are stored, rerun to resume" if isinstance(exc, Interrupted)
                 else "nothing was written")
-        print(f"{start}codebench: interrupted; {what}.", file=sys.stderr)
+        print(f"codebench: interrupted; {what}.", file=sys.stderr)
         return EXIT_INTERRUPTED
 
 
@@ -429,8 +470,3 @@ def _report(args: argparse.Namespace, exc: BaseException) -> None:
 
         traceback.print_exception(exc)
     print(f"codebench: {exc}", file=sys.stderr)
-
-
-def entry() -> NoReturn:
-    sys.exit(main())
-

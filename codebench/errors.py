@@ -18,6 +18,10 @@ from __future__ import annotations
 
 from typing import Any
 
+#: Exit statuses of the command line: done; a run fault (lost worker, full disk); bad input; stopped by
+#: Ctrl-C or SIGTERM (128 + SIGINT, the shell's convention).
+EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+
 
 class CodebenchError(Exception):
     """Root of every error codebench raises on purpose."""

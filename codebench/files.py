@@ -53,6 +53,16 @@ def write_atomically(path: str | Path, write: Callable[[IO[Any]], object], binar
     return target
 
 
+def make_folder(path: str | Path) -> Path:
+    """Create ``path`` (and its parents) or raise the one-line :class:`OutputError` naming it."""
+    folder = Path(path)
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputError(f"cannot create the folder '{folder}': {exc.strerror or exc}.") from exc
+    return folder
+
+
 def write_text(path: str | Path, text: str) -> Path:
     """Write ``text`` atomically (UTF-8, newlines as given)."""
     return write_atomically(path, lambda handle: handle.write(text))

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import re
 
+from codebench.build import point_label
 from codebench.config import load_sweep, parse_sweep
 from codebench.errors import ConfigError, not_allowed
 from codebench.records import Point
@@ -13,7 +14,7 @@ from codebench.records import Point
 def point_list(config: str) -> str:
     """One line per point of a sweep file, with the index ``--point`` takes."""
     sweep = load_sweep(config)
-    return "\n".join(f"{i}: {p.label()}" for i, p in enumerate(sweep.points))
+    return "\n".join(f"{i}: {point_label(p)}" for i, p in enumerate(sweep.points))
 
 
 def point_from_args(args: argparse.Namespace) -> Point:

@@ -78,8 +78,10 @@ class Point:
             study=study,
         )
 
-    def label(self) -> str:
-        return f"{self.code} d={self.distance} r={self.rounds} {self.basis} {self.noise} p={self.p:g} {self.decoder}"
+    def label(self, rate: str = "p") -> str:
+        """One line naming the point; ``rate`` is what its rate is called (``scale`` for a device)."""
+        return (f"{self.code} d={self.distance} r={self.rounds} {self.basis} {self.noise} {rate}={self.p:g} "
+                f"{self.decoder}")
 
 
 # ---------------------------------------------------------------------------

@@ -6,7 +6,15 @@ unless pytest is run with ``--slow``.
 
 from __future__ import annotations
 
+import signal
+
 import pytest
+
+# A suite started in the background of a non-interactive shell (`cmd &`, nohup, some CI runners)
+# inherits SIGINT ignored, and the codebench processes the tests start would inherit that too, so
+# the Ctrl-C tests would test nothing. Give them the ordinary disposition whatever started pytest.
+if signal.getsignal(signal.SIGINT) is signal.SIG_IGN:
+    signal.signal(signal.SIGINT, signal.default_int_handler)
 
 
 def pytest_addoption(parser: pytest.Parser) -> None:

@@ -152,10 +152,12 @@ BAD: list[tuple[str, str, list[str]]] = [
      ["name", "'../up'", "[A-Za-z0-9][A-Za-z0-9_.-]*"]),
     ("shot_budget 0", sweep_text(TOP + "[stopping]\nshot_budget = 0\n"),
      ["stopping.shot_budget", "0", "an integer >= 1"]),
+    ("shot_budget not a whole number", sweep_text(TOP + "[stopping]\nshot_budget = 1500.5\n"),
+     ["stopping.shot_budget", "1500.5", "an integer >= 1"]),
     ("failure_target bool", sweep_text(TOP + "[stopping]\nfailure_target = true\n"),
      ["stopping.failure_target", "True", "an integer >= 1"]),
-    ("failure_target float", sweep_text(TOP + "[stopping]\nfailure_target = 100.0\n"),
-     ["stopping.failure_target", "100.0", "an integer >= 1"]),
+    ("failure_target fraction", sweep_text(TOP + "[stopping]\nfailure_target = 100.5\n"),
+     ["stopping.failure_target", "100.5", "an integer >= 1"]),
     ("relative_precision 1.5", sweep_text(TOP + "[stopping]\nrelative_precision = 1.5\n"),
      ["stopping.relative_precision", "1.5", "a number in (0, 1)"]),
     ("stopping typo", sweep_text(TOP + "[stopping]\nshots = 10\n"),
@@ -272,7 +274,7 @@ def test_parse_rounds_forms() -> None:
     assert parse_rounds("d", 5, "r") == [5]
     assert parse_rounds("1d", 5, "r") == [5]
     assert parse_rounds("3d", 5, "r") == [15]
-    for bad in ("dd", "0d", "2 d", "d2", "", [], [1.0], True, None):
+    for bad in ("dd", "0d", "2 d", "d2", "", [], [1.5], True, None):
         with pytest.raises(ConfigError, match=r"^r(\[0\])? must be"):
             parse_rounds(bad, 5, "r")
 
@@ -304,6 +306,14 @@ def test_valid_grid_count_and_order(tmp_path: Path) -> None:
     assert {pt.study for pt in sweep.points[:-1]} == {"first"}
     last = sweep.points[-1]
     assert (last.code, last.distance, last.rounds, last.noise, last.study) == ("rotated_surface", 3, 3, "si1000", "1")
+
+
+def test_counts_written_as_whole_floats_are_accepted(tmp_path: Path) -> None:
+    # 1e6 is how people write a million; a float with an integer value is that integer.
+    cfg = tmp_path / "floats.toml"
+    cfg.write_text(sweep_text(TOP + "[stopping]\nfailure_target = 2e2\nshot_budget = 1e6\n", study()))
+    sweep = load_sweep(cfg)
+    assert sweep.stopping == Stopping(failure_target=200, shot_budget=1_000_000, relative_precision=None)
 
 
 def test_rounds_multiple_of_d_per_distance() -> None:

@@ -454,13 +454,15 @@ def _line_device(**changes: Any) -> str:
     return parse_device(data, "line").canonical_json()
 
 
-def test_layout_of_wrong_length_fails_at_circuit_build() -> None:
-    device_json = _line_device(layouts=[{"code": "repetition", "distance": 3, "qubits": ["q0", "q1", "q2", "q3"]}])
+def test_layout_of_wrong_length_fails_when_the_file_is_read() -> None:
+    # Refused by the reader (file name first), before any circuit is built or any output written.
+    data = copy.deepcopy(BASE)
+    data["layouts"] = [{"code": "repetition", "distance": 3, "qubits": ["q0", "q1", "q2", "q3"]}]
     with pytest.raises(DeviceFileError) as info:
-        noisy_circuit(device_point(device_json, code="repetition"))
+        parse_device(data, "line.toml")
     message = str(info.value)
     assert "\n" not in message
-    for fragment in ("layouts[0].qubits", "5 device qubits", "repetition d=3", "got 4"):
+    for fragment in ("line.toml", "layouts[0].qubits", "4 qubits", "5 device qubits", "repetition d=3"):
         assert fragment in message
 
 
@@ -831,3 +833,25 @@ def test_noise_errors_are_codebench_errors() -> None:
         from codebench.noise.device import DeviceNoise
 
         DeviceNoise(1.0)
+
+
+def test_forecast_with_a_layout_of_wrong_length_writes_nothing(tmp_path: Path,
+                                                              capsys: pytest.CaptureFixture[str]) -> None:
+    cli = pytest.importorskip("codebench.cli")
+    data = copy.deepcopy(BASE)
+    data["layouts"][0]["qubits"] = ["q0", "q1", "q2"]
+    device = tmp_path / "short.toml"
+    device.write_text(_toml(data))
+    out = tmp_path / "forecast"
+    assert cli.main(["forecast", str(device), "--code", "repetition", "--out", str(out)]) == 2
+    lines = [line for line in capsys.readouterr().err.splitlines() if line.strip()]
+    assert len(lines) == 1 and "layouts[0].qubits" in lines[0] and "short.toml" in lines[0]
+    assert not out.exists()
+
+
+def test_device_points_name_their_rate_a_scale() -> None:
+    # The device model's rate is a what-if factor, not an error probability (its RateMeaning says so).
+    from codebench.build import point_label
+
+    label = point_label(device_point(_line_device(), code="repetition"))
+    assert "scale=1" in label and "p=" not in label

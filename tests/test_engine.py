@@ -49,7 +49,7 @@ from codebench.engine.local import InProcessExecutor, LocalExecutor
 from codebench.errors import CodebenchError
 from codebench.records import FIRST_BATCH, Point, batch_sizes
 
-CLI = [sys.executable, "-c", "from codebench.cli import entry; entry()"]
+CLI = [sys.executable, "-m", "codebench"]
 Z95 = 1.959963984540054
 
 # A small grid: some points stop on failures, some on the shot budget.

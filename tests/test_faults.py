@@ -20,6 +20,7 @@ import shutil
 import signal
 import sqlite3
 import subprocess
+import sys
 import time
 from collections.abc import Iterator
 from contextlib import closing
@@ -357,6 +358,14 @@ def test_a_read_only_store_is_analysed_and_exported_and_refused_for_a_sweep(tmp_
         refused = run_limited(["sweep", sweep, "--out", folder, "--workers", 1, "--quiet"], None)
         assert refused.returncode == 2 and "read-only" in refused.stderr and "damaged" not in refused.stderr
         assert len(refused.stderr.strip().splitlines()) == 1
+        for verb in ("figures", "report"):
+            asked = run_limited([verb, folder, "--bootstrap", 50], None)
+            assert asked.returncode == 2 and "read-only" in asked.stderr and "--to" in asked.stderr
+            assert len(asked.stderr.strip().splitlines()) == 1
+            elsewhere = run_limited([verb, folder, "--bootstrap", 50, "--to", tmp_path / "review"], None)
+            assert elsewhere.returncode == 0, elsewhere.stderr
+        assert (tmp_path / "review" / "report" / "index.html").is_file()
+        assert any((tmp_path / "review" / "figures").glob("*.png"))
         assert {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()} == before
 
 
@@ -471,3 +480,26 @@ def test_forecast_distances_are_bounded_before_anything_is_built(args: list[str]
 def test_forecast_of_a_folder_says_it_is_a_folder(tmp_path: Path) -> None:
     done = run_limited(["forecast", tmp_path, "--work", "1e6"], None)
     assert done.returncode == 2 and "is a folder" in done.stderr and "does not exist" not in done.stderr
+
+
+# ---------------------------------------------------------------------------
+# the API from a plain script without the main guard (worker processes import the script)
+
+
+def test_a_script_without_the_main_guard_is_told_what_to_add(tmp_path: Path) -> None:
+    script = write(tmp_path / "plain.py", (
+        "import codebench\n"
+        "cfg = {'name': 'plain', 'seed': 1, 'stopping': {'shot_budget': 2000}, 'study': [{'code': 'repetition',\n"
+        "       'distances': [3], 'rounds': 'd', 'noise': 'si1000', 'p': [0.01], 'decoders': ['mwpm']}]}\n"
+        "codebench.run_sweep(cfg, out='out', workers=2, progress=False)\n"))
+    done = subprocess.run([sys.executable, str(script)], cwd=tmp_path, capture_output=True, text=True, timeout=300)
+    assert done.returncode != 0
+    last = done.stderr.strip().splitlines()[-1]
+    assert "WorkerLost" in last and "plain.py" in last and 'if __name__ == "__main__":' in last
+    assert "another codebench run" not in done.stderr
+    assert not (tmp_path / "out").exists()
+    guarded = write(tmp_path / "guarded.py", script.read_text().replace(
+        "codebench.run_sweep(", "if __name__ == '__main__':\n    codebench.run_sweep("))
+    assert subprocess.run([sys.executable, str(guarded)], cwd=tmp_path, capture_output=True, text=True,
+                          timeout=300).returncode == 0
+    assert (tmp_path / "out" / "results.csv").is_file()

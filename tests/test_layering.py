@@ -36,7 +36,7 @@ STAGES: dict[str, float] = {
     "tables": 13, "figures": 13,
     "report": 14,
     "cli": 15,
-    "__init__": 16, "__main__": 16,
+    "__init__": 16, "__main__": 16, "launch": 16,
 }
 
 

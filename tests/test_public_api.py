@@ -32,3 +32,16 @@ def test_lean_start_up() -> None:
              "print(','.join(m for m in ('scipy.stats', 'ldpc', 'pandas', 'matplotlib') if m in sys.modules))")
     done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, timeout=120, check=True)
     assert done.stdout.strip() == ""
+
+
+def test_version_line() -> None:
+    """`codebench --version`: one line naming codebench and the installed sampling/decoding libraries."""
+    import subprocess
+    import sys
+    from importlib.metadata import version
+
+    done = subprocess.run([sys.executable, "-m", "codebench", "--version"], capture_output=True, text=True,
+                          timeout=120, check=True)
+    lines = done.stdout.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith(f"codebench {codebench.__version__} (")
+    assert f"stim {version('stim')}" in lines[0] and f"pymatching {version('pymatching')}" in lines[0]

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import re
 from collections.abc import Iterable
 from typing import Any, TypeGuard
@@ -36,9 +37,13 @@ def require(table: dict[str, Any], key: str, what: str, at: str = "") -> Any:
 
 
 def positive_int(value: object, path: str, allowed: str) -> int:
-    if not is_int(value) or value < 1:
+    """A count >= 1; a float with an integer value counts (``shot_budget = 1e6`` is how people write it)."""
+    count = value
+    if isinstance(value, (float, np.floating)) and math.isfinite(value) and float(value).is_integer():
+        count = int(value)
+    if not is_int(count) or count < 1:
         raise Problem(not_allowed(path, value, allowed))
-    return int(value)
+    return int(count)
 
 
 def is_int(value: object) -> TypeGuard[int]:

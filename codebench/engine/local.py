@@ -7,16 +7,19 @@ import multiprocessing
 import os
 import select
 import signal
+import sys
 import threading
 import time
 from collections.abc import Iterator, Mapping
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
+from types import FrameType
 from typing import Any, ClassVar
 
+from codebench.build import point_label
 from codebench.engine.executor import Executor
 from codebench.engine.worker import run_batch
-from codebench.errors import WorkerLost
+from codebench.errors import EXIT_BAD_INPUT, WorkerLost
 from codebench.options import OptionSpec
 from codebench.records import BatchResult, BatchTask, Point
 
@@ -58,6 +61,31 @@ class InProcessExecutor(Executor):
 
 def _ready() -> bool:
     return True
+
+
+def leave_if_a_worker_imports_main() -> None:
+    """End a worker process that is running the user's script instead of starting up.
+
+    Worker processes import the script that started the coordinator (Python's
+    multiprocessing does, under the name ``__mp_main__``); a script that calls
+    ``run_sweep`` at its top level, outside ``if __name__ == "__main__":``,
+    would start a second sweep inside every worker. The worker leaves at once
+    and quietly; the coordinator then says what to add (:func:`_start_failed`).
+    """
+    frame: FrameType | None = sys._getframe(1)
+    while frame is not None:  # is some caller the script, run under the name multiprocessing gives it?
+        if frame.f_globals.get("__name__") == "__mp_main__":
+            os._exit(EXIT_BAD_INPUT)
+        frame = frame.f_back
+
+
+def _start_failed(exc: BaseException) -> WorkerLost:
+    script = getattr(sys.modules.get("__main__"), "__file__", None)
+    hint = ""
+    if script is not None and not script.endswith(("codebench/__main__.py", "bin/codebench")):
+        hint = (f"; worker processes import {os.path.basename(script)}: if it calls codebench at its top level, "
+                "put those calls under `if __name__ == \"__main__\":`")
+    return WorkerLost(f"the local worker processes could not start ({type(exc).__name__}){hint}")
 
 
 def _worker_setup(coordinator: int) -> None:
@@ -114,7 +142,7 @@ def _sigint_ignored() -> Iterator[None]:
 
 
 def _worker_lost(tasks: list[BatchTask]) -> WorkerLost:
-    labels = sorted({Point.from_params(task.params).label() for task in tasks})
+    labels = sorted({point_label(Point.from_params(task.params)) for task in tasks})
     shown = "; ".join(labels[:3]) + (f" and {len(labels) - 3} more points" if len(labels) > 3 else "")
     return WorkerLost(f"a local worker process died (killed, out of memory, or crashed by a decoder) while running "
                       f"batches of {shown}; the finished batches are stored: rerun the same command to resume")
@@ -144,8 +172,12 @@ class LocalExecutor(Executor):
         with _sigint_ignored():
             self._pool = ProcessPoolExecutor(max_workers=self.workers, mp_context=context,
                                              initializer=_worker_setup, initargs=(os.getpid(),))
-            for future in [self._pool.submit(_ready) for _ in range(self.workers)]:
-                future.result()
+            try:
+                for future in [self._pool.submit(_ready) for _ in range(self.workers)]:
+                    future.result()
+            except (BrokenProcessPool, OSError, EOFError) as exc:
+                self._pool.shutdown(wait=False, cancel_futures=True)
+                raise _start_failed(exc) from exc
         self._futures: dict[Future[BatchResult], BatchTask] = {}
         self._lost: WorkerLost | None = None
         self._closed = False

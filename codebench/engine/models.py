@@ -25,19 +25,32 @@ from codebench.records import Point
 
 __all__ = ["circuit_of", "model_of", "pack_model", "unpack_model"]
 
-#: Circuits and models a process keeps (least recently used evicted first).
+#: Circuits and models a process always keeps (least recently used evicted first) ...
 CACHE_SIZE = 8
+#: ... and more while their total size stays under this many units (a unit is one qubit in one
+#: tick, one detector, one measurement or one error mechanism: a few bytes of stim's memory). The
+#: coordinator describes every point before the first batch runs; a sweep of many small points
+#: then finds them all still built when it runs them, while a few large ones stay bounded.
+CACHE_UNITS = 2_000_000
 
 _lock = threading.Lock()
 _circuits: OrderedDict[str, stim.Circuit] = OrderedDict()
 _models: OrderedDict[tuple[str, bool], stim.DetectorErrorModel] = OrderedDict()
 
 
+def _units(item: stim.Circuit | stim.DetectorErrorModel) -> int:
+    if isinstance(item, stim.Circuit):
+        return int(item.num_qubits * (item.num_ticks + 1) + item.num_measurements + item.num_detectors)
+    return int(item.num_errors + item.num_detectors)
+
+
 def _remember(cache: OrderedDict[Any, Any], key: Any, value: Any) -> None:
     cache[key] = value
     cache.move_to_end(key)
-    while len(cache) > CACHE_SIZE:
-        cache.popitem(last=False)
+    total = sum(_units(item) for item in cache.values())
+    while len(cache) > CACHE_SIZE and total > CACHE_UNITS:
+        _, evicted = cache.popitem(last=False)
+        total -= _units(evicted)
 
 
 def _identity(params: dict[str, Any]) -> str:

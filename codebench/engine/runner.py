@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from types import FrameType
 from typing import Callable, Iterator, Sequence
 
-from codebench.build import qubit_count
+from codebench.build import point_label, qubit_count
 from codebench.decoders import get_decoder
 from codebench.engine.executors import Executor
 from codebench.engine.models import circuit_of, model_of, pack_model
@@ -46,6 +46,8 @@ class PointRun:
     tally: Tally = field(default_factory=Tally)
     #: The packed detector error model shipped with this point's batches (built on first use).
     model: bytes | None = None
+    #: The study the point belongs to (for the live view).
+    study: str = ""
 
     def refresh(self, stopping: Stopping) -> None:
         self.tally = tally(self.sizes, self.batches, stopping)
@@ -91,7 +93,8 @@ class PointRun:
 
     def status(self) -> PointStatus:
         shots, failures, seconds = self.known()
-        return PointStatus(self.stored.point.label(), self.tally, shots, failures, seconds)
+        return PointStatus(point_label(self.stored.point), self.tally, shots, failures, seconds, study=self.study,
+                           detectors=self.stored.detectors, running=bool(self.in_flight))
 
 
 def _failures_needed(stopping: Stopping) -> float:
@@ -153,9 +156,9 @@ def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress 
     """
     stored = store.all_batches()
     runs: list[PointRun] = []
-    for member, _ in plan.members:
+    for member, study in plan.members:
         sizes = BatchSchedule(plan.stopping.shot_budget, member.batch_cap)
-        run = PointRun(member, plan.seed, sizes, usable_batches(sizes, stored.get(member.key, [])))
+        run = PointRun(member, plan.seed, sizes, usable_batches(sizes, stored.get(member.key, [])), study=study)
         run.refresh(plan.stopping)
         runs.append(run)
     by_key = {run.stored.key: run for run in runs}
@@ -173,7 +176,7 @@ def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress 
                 run.batches[result.batch_index] = result
                 run.refresh(plan.stopping)
                 if progress is not None:
-                    progress.record(result.shots, result.failures)
+                    progress.record(result.shots, result.failures, result.seconds)
             if progress is not None:
                 progress.update([r.status() for r in runs], note=executor.note())
     except (KeyboardInterrupt, Interrupted):

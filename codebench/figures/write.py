@@ -14,6 +14,7 @@ from codebench.figures.canvas import FigureFile, FigurePlan, save
 from codebench.figures.data import plain_analysis
 from codebench.figures.manifest import Manifest, plan_digest
 from codebench.figures.style import STYLE
+from codebench.files import make_folder
 
 FIGURES_DIR = "figures"
 #: File-name prefixes this package owns in ``DIR/figures`` (stale files with them are removed).
@@ -57,8 +58,7 @@ def render_figures(folder: Path, frame: pd.DataFrame, analysis: Any) -> list[Fig
     (:mod:`codebench.figures.manifest`); ``FigureFile.drawn`` says which were.
     """
     folder = Path(folder)
-    out_dir = folder / FIGURES_DIR
-    out_dir.mkdir(parents=True, exist_ok=True)
+    out_dir = make_folder(folder / FIGURES_DIR)
     plans = plan_figures(frame, analysis)
     manifest = Manifest(folder)
     files = {plan.stem: (out_dir / f"{plan.stem}.png", out_dir / f"{plan.stem}.svg") for plan in plans}

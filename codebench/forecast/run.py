@@ -45,6 +45,7 @@ from typing import Callable, Mapping, Sequence
 
 from codebench.codes import CODE_FAMILIES
 from codebench.engine.executors import Executor, make_executor
+from codebench.engine.local import leave_if_a_worker_imports_main
 from codebench.errors import ConfigError, not_allowed
 from codebench.forecast import strata as strata_plan
 from codebench.forecast.breakeven import break_even
@@ -139,6 +140,7 @@ def forecast(
     distances, break-even, the budget and notes; its ``to_json()`` is the
     document of ``forecast.json`` (plain JSON types, see the README).
     """
+    leave_if_a_worker_imports_main()
     family = CODE_FAMILIES.get(code)
     bases = parse_bases(basis, family.bases if family is not None else ("Z", "X"))
     request = ForecastRequest(device=device, code=code, distances=tuple(distances), bases=bases, decoder=decoder,

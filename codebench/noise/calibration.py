@@ -320,6 +320,11 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
         ids = tuple(known(q, f"{path}.qubits[{j}]") for j, q in enumerate(mapped))
         if len(set(ids)) != len(ids):
             raise r.fail(f"{path}.qubits", mapped, "distinct device qubits")
+        # Checked here, not when a circuit is built, so nothing is written before the message.
+        needed = CODE_FAMILIES[code].qubit_count(distance)
+        if len(ids) != needed:
+            raise r.fail(f"{path}.qubits", f"{len(ids)} qubits",
+                         f"{needed} device qubits, one per qubit of {code} d={distance}")
         layouts[(code, distance)] = ids
 
     model = r.keys(top.get("model", {}), "model", ("gate_error_includes_decoherence",))

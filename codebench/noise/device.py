@@ -202,14 +202,9 @@ class DeviceNoise(NoiseModel):
         mapping = self.placement(layout.family, layout.distance)
         if mapping is None:
             return {q: None for q in ideal.qubits}
-        if len(mapping) != len(ideal.qubits):
-            where = "placement"
-            entries = self.device.data.get("layouts", [])
-            for i, e in enumerate(entries):
-                if (e.get("code"), e.get("distance")) == (layout.family, layout.distance):
-                    where = f"layouts[{i}].qubits"
+        if len(mapping) != len(ideal.qubits):  # an explicit placement (the reader checked [[layouts]])
             raise DeviceFileError(
-                f"device {self.device.name!r}: {where} must list {len(ideal.qubits)} device "
+                f"device {self.device.name!r}: placement must list {len(ideal.qubits)} device "
                 f"qubits (one per qubit of {layout.family} d={layout.distance}); got {len(mapping)}."
             )
         return {q: mapping[i] for i, q in enumerate(ideal.qubits)}
@@ -257,7 +252,7 @@ class DeviceNoise(NoiseModel):
         """``"<code> d=<d> on device qubits a, b, ... (best placement)"``, or ``None`` without a map."""
         qubits = self.placement(code, distance)
         if qubits is None or len(qubits) != CODE_FAMILIES[code].qubit_count(distance):
-            return None  # no map, or a layout of the wrong length (the circuit build says so)
+            return None  # no map, or a placement list of the wrong length (the circuit build says so)
         how = "[[layouts]]"
         for entry in self.device.data.get("layouts", []):
             if (entry.get("code"), entry.get("distance")) == (code, distance) and "chosen_by" in entry:

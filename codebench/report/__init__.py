@@ -22,7 +22,7 @@ import pandas as pd
 
 from codebench.api import load_results
 from codebench.figures import plain_analysis, render_figures
-from codebench.files import write_text
+from codebench.files import make_folder, write_text
 from codebench.report.cautions import FEW_FAILURES, SMALL_DISTANCE
 from codebench.report.content import Report
 from codebench.report.html import html_page
@@ -36,8 +36,12 @@ __all__ = ["FEW_FAILURES", "REPORT_DIR", "SMALL_DISTANCE", "RunInfo", "read_run_
 REPORT_DIR = "report"
 
 
-def write_report(folder: Path, frame: pd.DataFrame | None = None, analysis: object | None = None) -> Path:
+def write_report(folder: Path, frame: pd.DataFrame | None = None, analysis: object | None = None,
+                 to: Path | None = None) -> Path:
     """Write ``folder/"report"/index.html`` and ``summary.md``; return the HTML path.
+
+    ``to`` puts the report and its figures into another folder (a read-only
+    or archived results folder is read, never written).
 
     ``frame`` defaults to :func:`~codebench.api.load_results` of ``folder`` and
     ``analysis`` to :func:`~codebench.analysis.analyze` of ``frame``. The
@@ -54,10 +58,10 @@ def write_report(folder: Path, frame: pd.DataFrame | None = None, analysis: obje
             problems.append(problem)
     else:
         records = plain_analysis(analysis)
-    figures = render_figures(folder, frame, records)
+    target = folder if to is None else Path(to)
+    figures = render_figures(target, frame, records)
     report = Report(folder, frame, records, read_run_info(folder), figures, problems)
-    out_dir = folder / REPORT_DIR
-    out_dir.mkdir(parents=True, exist_ok=True)
+    out_dir = make_folder(target / REPORT_DIR)
     index = out_dir / "index.html"
     write_text(index, html_page(report))
     write_text(out_dir / "summary.md", markdown(report))
