@@ -5,7 +5,7 @@ Sources, beside each check:
 - The rotated surface code's data and measure qubits alternate on a square grid with
   nearest-neighbour couplers (common practice for square-grid chips; Fowler, Mariantoni, Martinis,
   Cleland, PRA 86, 032324 (2012), Fig. 1), so a distance-d patch is a diamond in a 2d - 1 square.
-- Subgraph monomorphisms counted independently with networkx's VF2 matcher (Cordella, Foggia,
+- Placements counted by a plain brute-force enumeration written in this file, by networkx's VF2 matcher (Cordella, Foggia,
   Sansone, Vento, IEEE TPAMI 26, 1367 (2004)) and, for the surface code on a grid, built as
   translations x the 8 symmetries of the square (dihedral group D4; common practice).
 - Logical error of placements sampled with stim + pymatching (the outside reference of the proxy).
@@ -135,28 +135,72 @@ def _translations_and_symmetries(distance: int, size: int) -> set[tuple[str, ...
     return out
 
 
+def _brute_force(nodes: list[str], edges: list[list[str]], qubits: tuple[int, ...],
+                 pairs: list[tuple[int, int]]) -> list[tuple[str, ...]]:
+    """Every injective map of the code's qubits to grid qubits with every pair on a coupler: plain
+    depth-first enumeration, each next code qubit (breadth-first from qubit 0) tried on every free grid
+    qubit next to its already placed partners (written here, independently of codebench's search)."""
+    adj: dict[str, set[str]] = {n: set() for n in nodes}
+    for a, b in edges:
+        adj[a].add(b)
+        adj[b].add(a)
+    partners: dict[int, set[int]] = {q: set() for q in qubits}
+    for a, b in pairs:
+        partners[a].add(b)
+        partners[b].add(a)
+    order = [qubits[0]]
+    for q in order:
+        order += sorted(partners[q] - set(order))
+    out: list[tuple[str, ...]] = []
+    place: dict[int, str] = {}
+
+    def go(i: int) -> None:
+        if i == len(order):
+            out.append(tuple(place[q] for q in qubits))
+            return
+        q = order[i]
+        done = [place[n] for n in partners[q] if n in place]
+        used = set(place.values())
+        for c in sorted(adj[done[0]]) if done else nodes:
+            if c not in used and all(c in adj[d] for d in done):
+                place[q] = c
+                go(i + 1)
+                del place[q]
+
+    go(0)
+    return sorted(out)
+
+
 @pytest.mark.parametrize("code, distance, expected", [
     ("rotated_surface", 3, 72),   # (7 - 5 + 1)^2 translations x 8 symmetries of the 5 x 5 diamond
     ("rotated_surface", 5, 0),    # the d = 5 diamond needs a 9 x 9 square
-    ("repetition", 3, 2652),      # self-avoiding 4-step paths on the 7 x 7 grid, counted by VF2 below
-    ("repetition", 5, 78168),
+    ("repetition", 3, 2652),      # 4-step self-avoiding paths on the 7 x 7 grid
+    ("repetition", 5, 78168),     # 8-step self-avoiding paths
 ])
-def test_placements_on_a_7x7_grid_match_an_independent_enumeration(code: str, distance: int,
-                                                                  expected: int) -> None:
-    nx = pytest.importorskip("networkx")
-    from networkx.algorithms.isomorphism import GraphMatcher
-
+def test_placements_on_a_7x7_grid_match_a_brute_force_enumeration(code: str, distance: int, expected: int) -> None:
     device = parse_device(grid_device(7, 7))
     qubits, pairs = pattern(code, distance)
     found = embeddings(device.geometry, qubits, pairs, limit=10**6)
-    host = nx.Graph([tuple(sorted(e)) for e in device.geometry.edges])
-    want = nx.Graph(pairs)
-    reference = sorted(tuple({c: h for h, c in m.items()}[q] for q in qubits)
-                       for m in GraphMatcher(host, want).subgraph_monomorphisms_iter())
+    reference = _brute_force(list(device.geometry.nodes), [sorted(e) for e in device.geometry.edges], qubits, pairs)
     assert found == reference
     assert len(found) == expected
     if code == "rotated_surface":
         assert set(found) == _translations_and_symmetries(distance, 7)
+
+
+@pytest.mark.parametrize("code, distance, rows", [("rotated_surface", 3, 7), ("repetition", 3, 7)])
+def test_placements_match_networkx_subgraph_monomorphisms(code: str, distance: int, rows: int) -> None:
+    nx = pytest.importorskip("networkx")
+    from networkx.algorithms.isomorphism import GraphMatcher
+
+    device = parse_device(grid_device(rows, rows))
+    qubits, pairs = pattern(code, distance)
+    host = nx.Graph([tuple(sorted(e)) for e in device.geometry.edges])
+    reference = sorted(tuple({c: h for h, c in m.items()}[q] for q in qubits)
+                       for m in GraphMatcher(host, nx.Graph(pairs)).subgraph_monomorphisms_iter())
+    assert embeddings(device.geometry, qubits, pairs) == reference
+    if code == "rotated_surface":
+        assert set(reference) == _translations_and_symmetries(distance, rows)
 
 
 def test_every_placed_gate_is_on_a_usable_coupler_and_dead_parts_are_never_used() -> None:

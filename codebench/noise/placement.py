@@ -7,7 +7,7 @@ monomorphism of the interaction graph into the usable coupling graph, found by a
 search that places the code's qubits in a connected order (each next qubit among the common
 neighbours of its placed partners). On a lattice this finds the translations and the lattice's
 rotations and reflections of the patch, and any other way the graph fits; ``tests/test_placement.py``
-checks the set against networkx's VF2 matcher (Cordella, Foggia, Sansone, Vento, IEEE TPAMI 26,
+checks the set against a brute-force enumeration, networkx's VF2 matcher (Cordella, Foggia, Sansone, Vento, IEEE TPAMI 26,
 1367 (2004)) and, for the rotated surface code on a square grid, against translations x the eight
 symmetries of the square.
 
