@@ -13,7 +13,7 @@ import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Callable, Iterator, NoReturn, Sequence
 
-from codebench.build import noisy_circuit
+from codebench.build import noise_model, noisy_circuit
 from codebench.errors import (
     EXIT_BAD_INPUT,
     EXIT_FAILURE,
@@ -84,6 +84,18 @@ def cmd_sweep(args: argparse.Namespace) -> int:
 
     sweep = load_sweep(args.config)
     out = Path(args.out) if args.out else sweep.output_dir_default
+    notes: dict[str, None] = {}
+    seen: set[tuple[object, ...]] = set()
+    for point in sweep.points:  # where each patch sits on a device (a patch that does not fit stops here)
+        if (point.noise, point.noise_options, point.code, point.distance) in seen:
+            continue
+        seen.add((point.noise, point.noise_options, point.code, point.distance))
+        note = noise_model(point).qubit_note(point.code, point.distance)
+        if note is not None:
+            notes[note] = None
+    if not args.quiet:
+        for note in notes:
+            print(note, file=sys.stderr)
     frame = run_sweep(sweep, out=out, workers=args.workers, progress=not args.quiet, scheduler=args.scheduler)
     print(summary_table(frame))
     print(f"\nwrote {out / 'results.csv'} and {out / 'results.sqlite'}")
@@ -249,6 +261,13 @@ def _positive_number(flag: str, what: str, largest: float) -> Callable[[str], fl
     return parse
 
 
+def _placement_choice(text: str | None) -> str | list[str] | None:
+    """``--placement``: best | worst | median, or comma-separated device qubit ids."""
+    if text is None or text in ("best", "worst", "median"):
+        return text
+    return [q.strip() for q in text.split(",")] if "," in text else text
+
+
 def cmd_forecast(args: argparse.Namespace) -> int:
     import json
 
@@ -262,7 +281,7 @@ def cmd_forecast(args: argparse.Namespace) -> int:
     result = forecast(args.device, code=args.code, distances=args.distances, basis=args.basis,
                       decoder=args.decoder, targets=targets, budget_seconds=args.budget_seconds, work=args.work,
                       workers=args.workers, seed=args.seed, out=args.out, improve=improve, method=args.method,
-                      progress=not args.quiet)
+                      progress=not args.quiet, placement=_placement_choice(args.placement))
     if args.format == "json":
         print(json.dumps(result.to_json(), indent=2, allow_nan=False))
     else:
@@ -271,6 +290,40 @@ def cmd_forecast(args: argparse.Namespace) -> int:
         out = Path(args.out)
         print(f"wrote {out / 'forecast.json'}, {out / 'forecast.csv'}, {out / 'forecast.png'}, "
               f"{out / 'forecast.svg'} (samples in {out / 'store'})", file=sys.stderr)
+    return EXIT_OK
+
+
+def cmd_placements(args: argparse.Namespace) -> int:
+    from codebench.figures.chip import write_chip_figure
+    from codebench.forecast.placements import (
+        COLOUR_KEYS,
+        placements_report,
+        placements_text,
+    )
+    from codebench.noise.placement import interaction_graph
+
+    improve: dict[str, float] = {}
+    for name, factor in args.improve or []:
+        improve[name] = improve.get(name, 1.0) * factor
+    out = Path(args.out)
+    if out.exists() and not out.is_dir():
+        raise ConfigError(not_allowed("--out", str(out), "a folder (or a path that does not exist yet)"))
+    report = placements_report(args.device, args.code, args.distance, top=args.top, sample=args.sample,
+                               shots=args.shots, seed=args.seed, improve=improve,
+                               placement=_placement_choice(args.placement), progress=not args.quiet)
+    print(placements_text(report))
+    from codebench.codes import CODE_FAMILIES
+
+    family = CODE_FAMILIES[args.code]
+    qubits, pairs = interaction_graph(family, args.distance, "cz" if report.device.native_2q == "cz" else "cx")
+    used_pairs = [(report.chosen[qubits.index(a)], report.chosen[qubits.index(b)]) for a, b in pairs]
+    out.mkdir(parents=True, exist_ok=True)
+    png, svg = write_chip_figure(
+        report.device, report.chosen, used_pairs, args.colour_by, COLOUR_KEYS[args.colour_by],
+        f"{args.code} d={args.distance} on {report.device.name}",
+        f"{report.choice} of {report.found} placements by the logical-error proxy",
+        out / f"placements_{args.code}_d{args.distance}")
+    print(f"wrote {png}, {svg}", file=sys.stderr)
     return EXIT_OK
 
 
@@ -377,7 +430,10 @@ def build_parser() -> argparse.ArgumentParser:
                          "on any machine")
     fc.add_argument("--improve", type=_improvement, action="append", metavar="PARAM=FACTOR",
                     help="what-if: scale t1_us/t2_us (factor on 1/T), gate_1q_error, gate_2q_error, readout_error, "
-                         "reset_error, or noise (all of them together); repeatable")
+                         "reset_error, link_error (couplers marked link), zz_khz, or noise (all but link_error and "
+                         "zz_khz together); repeatable")
+    fc.add_argument("--placement", help="on a device with a coupling graph: best (default), worst or median "
+                                        "placement by the proxy, or device qubit ids, comma-separated")
     fc.add_argument("--method", choices=["auto", "direct", "extrapolated", "stratified"], default="auto",
                     help="how each distance is estimated (default: auto: direct where it reaches "
                          "100 failures in the budget, else stratified by fault count)")
@@ -387,6 +443,28 @@ def build_parser() -> argparse.ArgumentParser:
     fc.add_argument("--seed", type=_bounded_int("--seed", 0, SEED_LIMIT - 1), default=20260101, help="seed of the sampling (default: 20260101)")
     fc.add_argument("--quiet", action="store_true", help="no progress lines")
     fc.set_defaults(func=cmd_forecast)
+
+    pl = sub.add_parser("placements", help="rank the placements of a code on a device's qubits; draw the chip")
+    pl.add_argument("device", help="device calibration file (TOML or JSON) with a [coupling] graph")
+    pl.add_argument("--code", default="rotated_surface", help="code family (default: rotated_surface)")
+    pl.add_argument("--distance", type=_bounded_int("--distance", 2, 201), required=True, help="code distance")
+    pl.add_argument("--sample", action="store_true",
+                    help="also sample each shown placement (rounds = d) for a per-round rate")
+    pl.add_argument("--shots", type=_bounded_int("--shots", 100, 10**8), default=20_000,
+                    help="shots per sampled placement (default: 20000)")
+    pl.add_argument("--top", type=_bounded_int("--top", 1, 10_000), default=10,
+                    help="best placements shown (the median and the worst are always shown; default: 10)")
+    pl.add_argument("--colour-by", choices=["t1_us", "t2_us", "readout_error", "gate_1q_error", "reset_error"],
+                    default="t1_us", help="per-qubit number that colours the chip (default: t1_us)")
+    pl.add_argument("--placement", help="which placement the figure draws: best (default), worst, median, or "
+                                        "device qubit ids, comma-separated")
+    pl.add_argument("--improve", type=_improvement, action="append", metavar="PARAM=FACTOR",
+                    help="what-if edits of the device, as for forecast; repeatable")
+    pl.add_argument("--out", default=".", help="folder for placements_<code>_d<D>.png/.svg (default: .)")
+    pl.add_argument("--seed", type=_bounded_int("--seed", 0, SEED_LIMIT - 1), default=1,
+                    help="seed of the sampling (default: 1)")
+    pl.add_argument("--quiet", action="store_true", help="no progress lines")
+    pl.set_defaults(func=cmd_placements)
     return parser
 
 

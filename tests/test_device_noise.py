@@ -476,8 +476,11 @@ def test_code_needing_a_missing_edge_fails_at_circuit_build() -> None:
     message = str(info.value)
     assert "\n" not in message
     assert "repetition d=3" in message and "q2" in message and "q3" in message and "[coupling]" in message
-    # Without a layout for the code there is no mapping, so the coupling graph is not consulted.
-    assert noisy_circuit(device_point(gappy, code="repetition", distance=5)).num_detectors > 0
+    # Without a layout the code is placed on the coupling graph: d = 5 needs 9 qubits of the 5 (issue 13:
+    # never a silent use of the defaults), and the message names the largest distance that fits.
+    with pytest.raises(DeviceFileError) as info:
+        noisy_circuit(device_point(gappy, code="repetition", distance=5))
+    assert "repetition d=5 does not fit" in str(info.value) and "largest distance that fits is 3" in str(info.value)
 
 
 def _sweep_file(tmp_path: Path, device: str) -> Path:
@@ -664,6 +667,8 @@ def test_defaults_apply_without_a_layout() -> None:
     check_whole_circuit(circuit, RAW_CURRENT, "rotated_surface", 5, 1.0)
     for path in sorted(DEVICES.glob("*.toml")):
         raw = tomllib.loads(path.read_text())
+        if "coupling" in raw:
+            continue  # a device with a coupling graph places the code on its own qubits (tests/test_placement.py)
         json_text = load_device(path).canonical_json()
         for basis in ("Z", "X"):
             check_whole_circuit(noisy_circuit(device_point(json_text, basis=basis, rounds=2)), raw, "rotated_surface", 3,

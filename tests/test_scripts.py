@@ -75,3 +75,10 @@ def test_bench_throughput_prints_wall_and_cpu_ratios() -> None:
     out = run_script("bench_throughput.py", "--shots", "20000", "--repeats", "1")
     for line in ("cpu_ratio ", "cpu_ratio_2_vs_1 ", "ratio_2_vs_1 ", "ratio "):
         assert any(row.startswith(line) for row in out.splitlines()), line
+
+
+def test_link_tolerance_prints_a_row_per_distance_and_ratio() -> None:
+    out = run_script("link_tolerance.py", "--shots", "2000", "--distances", "3,5", "--ratios", "1,10")
+    rows = [line for line in out.splitlines() if line.startswith("| 3 |") or line.startswith("| 5 |")]
+    assert len(rows) == 4
+    assert "ratio 10: Lambda_3/5 =" in out

@@ -160,6 +160,7 @@ def parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[Po
     for d, r in sorted({(d, r) for d in distances for r in rounds[d]}):
         _check_size(family, d, r, bases, at)
 
+    placed = {d: model.options_for(options, code, d) for d in distances}
     points = [
         Point(
             code=code,
@@ -169,7 +170,7 @@ def parse_study(study: object, index: int, base_dir: Path) -> tuple[str, list[Po
             noise=noise,
             p=p,
             decoder=decoder,
-            noise_options=options,
+            noise_options=placed[d],
             decoder_options=decoder_options[decoder],
             study=label,
         )
@@ -335,7 +336,8 @@ def _noise_keys() -> set[str]:
 
 def _model_keys(model: type[NoiseModel]) -> set[str]:
     """The study keys a noise model reads: its rate key and its options' source."""
-    return {model.rate.key, "noise_options" if model.source_key is None else model.source_key}
+    return {model.rate.key, "noise_options" if model.source_key is None else model.source_key,
+            *model.source_overrides}
 
 
 def _parse_noise(study: dict[str, Any], model: type[NoiseModel], at: str,
@@ -361,7 +363,8 @@ def _parse_noise(study: dict[str, Any], model: type[NoiseModel], at: str,
     if model.source_key is not None:
         kind = model.source_key
         file = _source_file(require(study, kind, f"the path of a {kind} file", at), f"{at}.{kind}", kind, base_dir)
-        return rates, tuple(sorted(model.options_from_source(file).items()))
+        overrides = {key: study[key] for key in model.source_overrides if key in study}
+        return rates, tuple(sorted(model.options_from_source(file, **overrides).items()))
     table = study.get("noise_options", {})
     path = f"{at}.noise_options"
     if not isinstance(table, dict):

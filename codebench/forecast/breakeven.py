@@ -35,9 +35,15 @@ def idle_error(t_us: float, t1_us: float, t2_us: float) -> float:
     return float(sum(twirled_idle(t_us, t1_us, t2_us)))
 
 
-def break_even(device: Device, round_us: float, rows: Sequence[RatedDistance]) -> BreakEven:
-    """Each distance's per-round rate against the best and the median idle qubit of ``device`` over ``round_us``."""
-    listed = list(device.qubits.items()) or [("defaults", device.defaults)]
+def break_even(device: Device, round_us: float, rows: Sequence[RatedDistance],
+               usable: Sequence[str] | None = None) -> BreakEven:
+    """Each distance's per-round rate against the best and the median idle qubit of ``device`` over ``round_us``.
+
+    The qubits compared: ``usable`` where given (a device with a coupling graph: its usable qubits, each
+    with its own numbers or the defaults), else the listed qubits, else the defaults.
+    """
+    listed = ([(q, device.qubit(q)) for q in usable] if usable else list(device.qubits.items())) \
+        or [("defaults", device.defaults)]
     errors = {qid: idle_error(round_us, cal.t1_us, cal.t2_us) for qid, cal in listed}
     best_id = min(errors, key=lambda q: errors[q])
     best = errors[best_id]

@@ -84,6 +84,7 @@ def forecast_table(result: ForecastResult) -> str:
         f"{result.code} memory in the {result.basis} basis, rounds = d, decoder {result.decoder}"
         + (" (per-round rates: the logical qubit fails when either basis fails)" if len(result.bases) > 1 else ""),
         "A model-based projection from the device file: see the cautions at the end.",
+        *[f"d = {d} on device qubits {', '.join(q)}" for d, q in result.placements.items()],
         "",
         "Per distance (per-round logical error with 95% interval)",
     ]

@@ -72,6 +72,8 @@ class ForecastRequest:
     method: str | Mapping[int, str] = "auto"
     progress: bool = False
     executor_factory: Callable[[int], Executor] | None = None
+    #: Which placement a device with a coupling graph uses (None: the device file's ``placement``, "best").
+    placement: str | tuple[str, ...] | None = None
 
     @property
     def decoder_name(self) -> str:
@@ -129,6 +131,9 @@ class ForecastRequest:
         if isinstance(self.method, Mapping) and any(d not in checked for d in self.method):
             raise ConfigError(not_allowed("method", dict(self.method), "a mapping from forecast distances to methods"))
         check_improve(self.improve)
+        if isinstance(self.placement, str) and self.placement not in ("best", "worst", "median"):
+            raise ConfigError(not_allowed("--placement", self.placement, "best, worst, median or a comma-separated "
+                                          "list of device qubit ids (one per code qubit)"))
         return ForecastRequest(**{**self.__dict__, "distances": tuple(sorted(set(checked))),
                                   "targets": tuple(float(t) for t in self.targets), "improve": dict(self.improve)})
 

@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, ClassVar, Mapping, TypeVar, cast
 
 import numpy as np
@@ -301,6 +301,8 @@ class ForecastResult:
     budget: BudgetSummary
     cautions: tuple[str, ...]
     notes: tuple[str, ...]
+    #: Device qubits of each distance's patch (code qubit order), where the device maps them.
+    placements: Mapping[str, tuple[str, ...]] = field(default_factory=dict)
 
     method_note: ClassVar[str] = (
         "direct: counts at the device's noise; stratified: P_L = sum_w P(W = w) f(w) over the "
@@ -349,4 +351,6 @@ class ForecastResult:
             "budget": self.budget.to_json(),
             "cautions": list(self.cautions),
             "notes": list(self.notes),
+            # Only where the device maps the code's qubits, so documents of devices without do not change.
+            **({"placements": {d: list(q) for d, q in self.placements.items()}} if self.placements else {}),
         })

@@ -76,7 +76,7 @@ from codebench.forecast.result import (
     plain,
 )
 from codebench.forecast.sampling import Sample, Sampler
-from codebench.forecast.whatif import improve_device
+from codebench.forecast.whatif import improve_device, place_device
 from codebench.layout import Basis
 from codebench.noise.calibration import Device, load_device
 from codebench.noise.device import DeviceNoise
@@ -112,6 +112,7 @@ class Context:
     executor: Executor
     budget: WorkBudget
     notes: list[str]
+    placed: dict[int, tuple[str, ...]]
 
 
 def forecast(
@@ -131,6 +132,7 @@ def forecast(
     method: str | Mapping[int, str] = "auto",
     progress: bool = False,
     executor_factory: Callable[[int], Executor] | None = None,
+    placement: str | Sequence[str] | None = None,
 ) -> ForecastResult:
     """Forecast a device's logical qubit; see :class:`ForecastRequest` for the parameters.
 
@@ -146,8 +148,33 @@ def forecast(
     request = ForecastRequest(device=device, code=code, distances=tuple(distances), bases=bases, decoder=decoder,
                               targets=tuple(targets), budget_seconds=budget_seconds, work=work, workers=workers,
                               seed=seed, out=out, improve=dict(improve or {}), method=method, progress=progress,
-                              executor_factory=executor_factory)
+                              executor_factory=executor_factory,
+                              placement=placement if placement is None or isinstance(placement, str)
+                              else tuple(placement))
     return run_forecast(request)
+
+
+def placements(device: Device, code: str, distances: Sequence[int]) -> dict[int, tuple[str, ...]]:
+    """The device qubits each distance's patch sits on (hand-written layouts and automatic placements);
+    raises :class:`~codebench.errors.DeviceFileError` when a patch does not fit the coupling graph."""
+    model = DeviceNoise(1.0, device=device.canonical_json())
+    out = {}
+    for d in distances:
+        qubits = model.placement(code, d)
+        if qubits is not None:
+            out[d] = qubits
+    return out
+
+
+def _placement_lines(device: Device, request: ForecastRequest, placed: dict[int, tuple[str, ...]]) -> None:
+    """Progress lines: the device qubits of each distance, or that the defaults apply."""
+    for d, qubits in placed.items():
+        print(f"forecast: d = {d} on device qubits {', '.join(qubits)}", file=sys.stderr, flush=True)
+    unused = [d for d in request.distances if d not in placed]
+    if device.qubits and unused:
+        print(f"forecast: the device file lists per-qubit numbers but neither a [coupling] graph nor a [[layouts]] "
+              f"entry for {request.code} d = {', '.join(map(str, unused))}: its defaults apply there",
+              file=sys.stderr, flush=True)
 
 
 def run_forecast(request: ForecastRequest) -> ForecastResult:
@@ -159,7 +186,8 @@ def run_forecast(request: ForecastRequest) -> ForecastResult:
     else:
         source = str(request.device)
         base = load_device(Path(request.device))
-    device = improve_device(base, request.improve, source)
+    device = place_device(improve_device(base, request.improve, source), request.placement, source)
+    placed = placements(device, request.code, request.distances)  # a patch that does not fit stops here
     count = request.workers or os.cpu_count() or 1
     tmp: tempfile.TemporaryDirectory[str] | None = None
     out_dir: Path | None = None
@@ -186,8 +214,9 @@ def run_forecast(request: ForecastRequest) -> ForecastResult:
         started = time.perf_counter()
         factory = request.executor_factory or make_executor
         executor = factory(count)  # ours: closed below, whatever happens
-        context = Context(request, device, store, device_file, executor, budget, [])
+        context = Context(request, device, store, device_file, executor, budget, [], placed)
         if request.progress:
+            _placement_lines(device, request, placed)
             print(f"forecast: plan of {budget.total:.3g} detector-shots of work, about "
                   f"{budget.estimated_seconds(count):.0f} s on {count} worker(s) at the reference rate",
                   file=sys.stderr, flush=True)
@@ -417,12 +446,14 @@ def _assemble(context: Context, sampled: dict[str, list[Sampled]], device_file: 
         per_basis={b: tuple(r) for b, r in per_basis.items()} if len(per_basis) > 1 else None,
         lambda_fit=fit, lambda_pairs=tuple(pairs), constant_lambda=problem is None,
         targets=tuple(target_rows),
-        break_even=break_even(context.device, round_us, rows),
+        break_even=break_even(context.device, round_us, rows,
+                              [q for q in context.device.geometry.nodes if q not in context.device.geometry.dead_qubits]),
         budget=BudgetSummary(
             seconds=float(request.budget_seconds), work=context.budget.total, work_spent=context.budget.spent,
             hard_limit_reached=bool(context.budget.cut_short), cut_short=tuple(context.budget.cut_short),
             methods={str(d): request.method_of(d) for d in request.distances}, wall_seconds=wall_seconds),
         cautions=tuple(CAUTIONS),
         notes=tuple(notes),
+        placements={str(d): q for d, q in context.placed.items()},
     )
     return plain(result)

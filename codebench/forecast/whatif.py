@@ -4,17 +4,20 @@ from __future__ import annotations
 
 import copy
 import math
-from typing import Any, Mapping
+from typing import Any, Mapping, Sequence
 
 from codebench.errors import ConfigError, not_allowed
 from codebench.noise.calibration import Device, parse_device
 
-__all__ = ["IMPROVABLE", "check_improve", "improve_device", "parse_improve"]
+__all__ = ["IMPROVABLE", "check_improve", "improve_device", "parse_improve", "place_device"]
 
 #: Parameters ``improve`` may scale. For t1_us / t2_us the factor applies to 1/T; ``noise`` scales all of them
 #: together (the sweep file's ``scale``), which keeps the mechanisms proportional so f(w) tables are reused.
-IMPROVABLE = ("t1_us", "t2_us", "gate_1q_error", "gate_2q_error", "readout_error", "reset_error", "noise")
-SCALED_TOGETHER = IMPROVABLE[:-1]
+#: ``link_error`` scales the two-qubit error of the couplers marked ``link = true`` only; ``zz_khz`` every
+#: residual ZZ rate.
+IMPROVABLE = ("t1_us", "t2_us", "gate_1q_error", "gate_2q_error", "readout_error", "reset_error", "link_error",
+              "zz_khz", "noise")
+SCALED_TOGETHER = ("t1_us", "t2_us", "gate_1q_error", "gate_2q_error", "readout_error", "reset_error")
 
 
 def parse_improve(text: str) -> tuple[str, float]:
@@ -78,6 +81,7 @@ def improve_device(device: Device, improve: Mapping[str, float], source: str = "
             table[key] = table[key] / factor if inverse else table[key] * factor
 
     tables = [data.get("defaults")] + list(data.get("qubits", []) or [])
+    pairs = list(data.get("pairs", []) or [])
     expanded: list[tuple[str, float]] = []
     for name, factor in factors.items():
         expanded += [(each, factor) for each in SCALED_TOGETHER] if name == "noise" else [(name, factor)]
@@ -88,7 +92,25 @@ def improve_device(device: Device, improve: Mapping[str, float], source: str = "
             for key in keys:
                 scale(table, key, factor, inverse)
         if name == "gate_2q_error":
-            for pair in data.get("pairs", []) or []:
+            for pair in pairs:
                 scale(pair, "gate_2q_error", factor, False)
+        if name == "zz_khz":
+            for pair in pairs:
+                scale(pair, "zz_khz", factor, False)
+        if name == "link_error":
+            default = data.get("defaults", {}).get("gate_2q_error")
+            for pair in pairs:
+                if isinstance(pair, dict) and pair.get("link") is True:
+                    pair.setdefault("gate_2q_error", default)
+                    scale(pair, "gate_2q_error", factor, False)
     spec = ",".join(f"{k}={v:g}" for k, v in factors.items())
     return parse_device(data, f"{source} with --improve {spec}")
+
+
+def place_device(device: Device, placement: str | Sequence[str] | None, source: str = "<device>") -> Device:
+    """The device with its ``placement`` replaced (best / worst / median or device qubit ids), re-validated."""
+    if placement is None:
+        return device
+    data = copy.deepcopy(device.data)
+    data["placement"] = placement if isinstance(placement, str) else list(placement)
+    return parse_device(data, f"{source} with placement {placement if isinstance(placement, str) else 'list'}")

@@ -70,6 +70,8 @@ class NoiseModel(ABC):
     option_specs: ClassVar[dict[str, OptionSpec]] = {}
     #: A study key naming a file the model's options come from (``device``), or ``None``.
     source_key: ClassVar[str | None] = None
+    #: Study keys that change what :meth:`options_from_source` reads from the file (``placement`` of a device).
+    source_overrides: ClassVar[tuple[str, ...]] = ()
     #: Whether :meth:`round_duration_ns` gives the physical duration of a syndrome round.
     has_round_duration: ClassVar[bool] = False
     #: Whether the noise acts once (before perfect syndrome extraction) instead of in every round.
@@ -83,8 +85,9 @@ class NoiseModel(ABC):
         return {"noise": self.name, "p": self.p, "noise_options": dict(self.chosen)}
 
     @classmethod
-    def options_from_source(cls, path: Path) -> dict[str, str]:
-        """The options read from the file named by the study's :attr:`source_key`."""
+    def options_from_source(cls, path: Path, **overrides: Any) -> dict[str, str]:
+        """The options read from the file named by the study's :attr:`source_key` (with the study's
+        :attr:`source_overrides` keys where given)."""
         raise NotImplementedError(f"noise model {cls.name!r} reads no file")
 
     @classmethod
@@ -99,6 +102,16 @@ class NoiseModel(ABC):
     def decorate(self, ideal: IdealCircuit) -> stim.Circuit:
         """The noisy stim circuit for ``ideal``."""
         return render(ideal, self.layer_noise)
+
+    @classmethod
+    def options_for(cls, options: tuple[tuple[str, str], ...], code: str,
+                    distance: int) -> tuple[tuple[str, str], ...]:
+        """The options of the points of one code and distance (a device: with the patch's placement fixed)."""
+        return options
+
+    def qubit_note(self, code: str, distance: int) -> str | None:
+        """Where the code's qubits sit, for the start of a run (a device: its own qubits), or ``None``."""
+        return None
 
     def circuit_gate_set(self) -> GateSet:
         """The gate set circuits are compiled to (a device may choose its own)."""

@@ -54,12 +54,22 @@ from typing import Any
 
 from codebench.codes import CODE_FAMILIES
 from codebench.errors import DeviceFileError, not_allowed
+from codebench.noise.geometry import (
+    Geometry,
+    pair_marks,
+    parse_coupling,
+    qubit_marks,
+    zz_rate,
+)
 
 QUBIT_KEYS = ("t1_us", "t2_us", "gate_1q_error", "readout_error", "readout_error_0to1",
               "readout_error_1to0", "reset_error")
 DEFAULT_KEYS = QUBIT_KEYS + ("gate_2q_error",)
 DURATION_KEYS = ("gate_1q_ns", "gate_2q_ns", "measure_ns", "reset_ns")
-TOP_KEYS = ("name", "native_2q", "defaults", "durations", "qubits", "pairs", "coupling", "layouts", "model")
+TOP_KEYS = ("name", "native_2q", "defaults", "durations", "qubits", "pairs", "coupling", "layouts", "model",
+            "placement")
+PAIR_KEYS = ("qubits", "gate_2q_error", "gate_2q_ns", "usable", "link", "zz_khz")
+PLACEMENT_CHOICES = ("best", "worst", "median")
 _PROBABILITY = "a probability in [0, 0.5]"
 
 
@@ -89,6 +99,11 @@ class Device:
     layouts: dict[tuple[str, int], tuple[str, ...]]
     gate_error_includes_decoherence: bool
     data: dict[str, Any]
+    #: Coupling graph, usable marks and per-coupler numbers (empty for a device without a graph).
+    geometry: Geometry = Geometry()
+    #: Which placement of a code the device's circuits use when no [[layouts]] entry gives one:
+    #: "best" | "worst" | "median" by the logical-error proxy, or an explicit list of device qubits.
+    placement: str | tuple[str, ...] = "best"
 
     def canonical_json(self) -> str:
         return json.dumps(self.data, sort_keys=True, separators=(",", ":"))
@@ -100,6 +115,12 @@ class Device:
         if device_qubit is None:
             return self.defaults
         return self.qubits.get(device_qubit, self.defaults)
+
+    def coupler_ns(self, a: str | None, b: str | None) -> float:
+        """Duration of the two-qubit gate on the coupler a-b (its own where given, else the default)."""
+        if a is None or b is None:
+            return self.durations_ns["gate_2q_ns"]
+        return self.geometry.pair_ns.get(frozenset((a, b)), self.durations_ns["gate_2q_ns"])
 
     def pair_error(self, a: str | None, b: str | None) -> float:
         if a is None or b is None:
@@ -183,7 +204,7 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
         raise r.fail("native_2q", native, "'cz' or 'cx'")
     if "defaults" not in top:
         raise DeviceFileError(f"{source}: defaults is required (a table with {', '.join(DEFAULT_KEYS[:4])}, ...).")
-    defaults_table = r.keys(top["defaults"], "defaults", DEFAULT_KEYS)
+    defaults_table = r.keys(top["defaults"], "defaults", DEFAULT_KEYS + ("zz_khz",))
     defaults = r.qubit_values(defaults_table, "defaults", None)
     for key in ("t1_us", "t2_us", "gate_1q_error", "gate_2q_error", "readout_error", "reset_error"):
         if key not in defaults:
@@ -195,49 +216,64 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
             raise DeviceFileError(f"{source}: durations.{key} is required (nanoseconds).")
         durations[key] = r.positive(durations_table[key], f"durations.{key}", "nanoseconds")
 
+    generated = None
+    if "coupling" in top:
+        coupling_table = r.keys(top["coupling"], "coupling", ("edges", "lattice", "rows", "columns"))
+        generated = parse_coupling(coupling_table, r.fail, lambda key: r.fail(f"coupling.{key}", key, "a key"))
+    lattice_ids = set(generated[0]) if generated is not None else set()
+
     qubits: dict[str, QubitCalibration] = {}
     raw_qubits = top.get("qubits", [])
     if not isinstance(raw_qubits, list):
         raise r.fail("qubits", raw_qubits, "an array of tables ([[qubits]])")
     for i, entry in enumerate(raw_qubits):
         path = f"qubits[{i}]"
-        table = r.keys(entry, path, ("id",) + QUBIT_KEYS)
+        table = r.keys(entry, path, ("id",) + QUBIT_KEYS + ("x", "y", "usable"))
         qid = table.get("id")
         if not isinstance(qid, str) or not qid:
             raise r.fail(f"{path}.id", qid, "a non-empty string")
+        if generated is not None and qid not in lattice_ids:
+            raise r.fail(f"{path}.id", qid, f"a qubit of the {top['coupling']['lattice']} lattice (q<row>_<column>"
+                         + (", b<row>_<column> for bridges)" if top["coupling"]["lattice"] == "heavy_hex" else ")"))
         if qid in qubits:
             raise r.fail(f"{path}.id", qid, "an id no earlier qubit uses")
         values = r.qubit_values(table, path, {k: v for k, v in defaults.items() if k != "gate_2q_error"})
         qubits[qid] = _calibration(values)
 
     def known(qid: Any, path: str) -> str:
-        if not isinstance(qid, str) or (qubits and qid not in qubits):
+        if generated is not None and (not isinstance(qid, str) or qid not in lattice_ids):
+            raise r.fail(path, qid, "the id of a qubit of the [coupling] lattice")
+        if not isinstance(qid, str) or (qubits and generated is None and qid not in qubits):
             raise r.fail(path, qid, "the id of a qubit listed under [[qubits]]" if qubits else "a qubit id")
         return qid
 
     pairs: dict[frozenset[str], float] = {}
     pair_entry: dict[frozenset[str], int] = {}
+    marks: dict[frozenset[str], dict[str, Any]] = {}
     raw_pairs = top.get("pairs", [])
     if not isinstance(raw_pairs, list):
         raise r.fail("pairs", raw_pairs, "an array of tables ([[pairs]])")
     for i, entry in enumerate(raw_pairs):
         path = f"pairs[{i}]"
-        table = r.keys(entry, path, ("qubits", "gate_2q_error"))
+        table = r.keys(entry, path, PAIR_KEYS)
         ends = table.get("qubits")
         if not isinstance(ends, list) or len(ends) != 2 or ends[0] == ends[1]:
             raise r.fail(f"{path}.qubits", ends, "a list of two different qubit ids")
         a, b = known(ends[0], f"{path}.qubits[0]"), known(ends[1], f"{path}.qubits[1]")
-        if "gate_2q_error" not in table:
+        if len(table) == 1:
             raise DeviceFileError(f"{source}: {path}.gate_2q_error is required.")
-        if frozenset((a, b)) in pairs:
+        if frozenset((a, b)) in pair_entry:
             raise r.fail(f"{path}.qubits", ends, "a pair no earlier [[pairs]] entry gives")
-        pairs[frozenset((a, b))] = r.probability(table["gate_2q_error"], f"{path}.gate_2q_error")
+        if "gate_2q_error" in table:
+            pairs[frozenset((a, b))] = r.probability(table["gate_2q_error"], f"{path}.gate_2q_error")
+        marks[frozenset((a, b))] = pair_marks(table, path, r.fail, r.positive)
         pair_entry[frozenset((a, b))] = i
 
     edges: frozenset[frozenset[str]] | None = None
-    if "coupling" in top:
-        coupling = r.keys(top["coupling"], "coupling", ("edges",))
-        raw_edges = coupling.get("edges")
+    if generated is not None:
+        edges = frozenset(frozenset(e) for e in generated[2])
+    elif "coupling" in top:
+        raw_edges = top["coupling"].get("edges")
         if not isinstance(raw_edges, list):
             raise r.fail("coupling.edges", raw_edges, "a list of [qubit, qubit] pairs")
         found = set()
@@ -246,9 +282,18 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
                 raise r.fail(f"coupling.edges[{i}]", edge, "a pair of two different qubit ids")
             found.add(frozenset((known(edge[0], f"coupling.edges[{i}][0]"), known(edge[1], f"coupling.edges[{i}][1]"))))
         edges = frozenset(found)
+    if edges is not None:
         for pair, i in pair_entry.items():
             if pair not in edges:
                 raise r.fail(f"pairs[{i}].qubits", raw_pairs[i]["qubits"], "an edge of [coupling]")
+    else:
+        for pair, i in pair_entry.items():
+            if marks[pair]:
+                raise r.fail(f"pairs[{i}]", sorted(marks[pair]), "coupler marks (usable, link, gate_2q_ns, "
+                             "zz_khz) only on a device with a [coupling] graph")
+    geometry = _geometry(generated, edges, raw_qubits, qubits, marks,
+                         zz_rate(defaults_table.get("zz_khz", 0.0), "defaults.zz_khz", r.fail), r)
+    placement = _placement(top.get("placement", "best"), known, r)
 
     layouts: dict[tuple[str, int], tuple[str, ...]] = {}
     raw_layouts = top.get("layouts", [])
@@ -256,7 +301,10 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
         raise r.fail("layouts", raw_layouts, "an array of tables ([[layouts]])")
     for i, entry in enumerate(raw_layouts):
         path = f"layouts[{i}]"
-        table = r.keys(entry, path, ("code", "distance", "qubits"))
+        table = r.keys(entry, path, ("code", "distance", "qubits", "chosen_by"))
+        if "chosen_by" in table and table["chosen_by"] not in PLACEMENT_CHOICES + ("placement",):
+            raise r.fail(f"{path}.chosen_by", table["chosen_by"], "best, worst, median or placement (how "
+                         "codebench chose the qubits; leave it out of hand-written layouts)")
         code, distance, mapped = table.get("code"), table.get("distance"), table.get("qubits")
         if not isinstance(code, str) or code not in CODE_FAMILIES:
             raise r.fail(f"{path}.code", code, "one of " + ", ".join(repr(c) for c in CODE_FAMILIES))
@@ -288,7 +336,48 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
         name=name.strip(), native_2q=native, defaults=_calibration(defaults),
         gate_2q_error=defaults["gate_2q_error"], durations_ns=durations, qubits=qubits, pairs=pairs,
         edges=edges, layouts=layouts, gate_error_includes_decoherence=includes, data=_plain(top),
+        geometry=geometry, placement=placement,
     )
+
+
+def _geometry(generated: Any, edges: frozenset[frozenset[str]] | None, raw_qubits: list[Any],
+              qubits: dict[str, QubitCalibration], marks: dict[frozenset[str], dict[str, Any]],
+              zz_default: float, r: _Reader) -> Geometry:
+    """The device's :class:`Geometry` from the parsed coupling graph, qubit entries and pair marks."""
+    coords, dead = qubit_marks(raw_qubits, generated is not None, r.fail)
+    if edges is None:
+        if coords or dead:
+            raise r.fail("qubits", "x / y / usable", "qubit coordinates and usable marks only on a device with "
+                         "a [coupling] graph")
+        return Geometry(zz_default_khz=zz_default)
+    if generated is not None:
+        nodes = list(generated[0])
+        coords = dict(generated[1])
+    else:
+        nodes = list(qubits)
+        for edge in sorted(edges, key=sorted):
+            nodes += [q for q in sorted(edge) if q not in nodes]
+    return Geometry(
+        nodes=tuple(nodes), edges=edges, coords=coords, dead_qubits=frozenset(dead),
+        dead_pairs=frozenset(p for p, m in marks.items() if m.get("usable") is False),
+        pair_ns={p: m["gate_2q_ns"] for p, m in marks.items() if "gate_2q_ns" in m},
+        links=frozenset(p for p, m in marks.items() if m.get("link")),
+        zz_khz={p: m["zz_khz"] for p, m in marks.items() if "zz_khz" in m}, zz_default_khz=zz_default,
+    )
+
+
+def _placement(value: Any, known: Any, r: _Reader) -> str | tuple[str, ...]:
+    allowed = "'best', 'worst', 'median' or a list of device qubit ids (one per code qubit)"
+    if isinstance(value, str):
+        if value not in PLACEMENT_CHOICES:
+            raise r.fail("placement", value, allowed)
+        return value
+    if not isinstance(value, list) or not value:
+        raise r.fail("placement", value, allowed)
+    ids = tuple(known(q, f"placement[{j}]") for j, q in enumerate(value))
+    if len(set(ids)) != len(ids):
+        raise r.fail("placement", value, "distinct device qubits")
+    return ids
 
 
 def _calibration(values: dict[str, float]) -> QubitCalibration:

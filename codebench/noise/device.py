@@ -23,22 +23,41 @@ Per layer (a layer lasts as long as its longest operation):
   decoherence during the gate, so gate qubits get only the gate channel.
   Set it false to add the idle channel for the gate's own duration too.
 
+- residual ZZ (off unless a coupler or ``[defaults]`` gives ``zz_khz``): two
+  coupled qubits of the patch that both idle through a layer of duration t
+  accumulate the conditional phase phi = 2 pi zeta t, zeta the coupler's ZZ
+  rate (the shift omega_11 - omega_10 - omega_01 + omega_00 = 2 pi zeta).
+  diag(1, 1, 1, e^{i phi}) equals, up to a global phase,
+  exp(-i phi Z1/4) exp(-i phi Z2/4) exp(i phi Z1 Z2/4); the single-qubit
+  parts are deterministic and taken as calibrated away (tracked as frame
+  changes), and the Pauli twirl of exp(i phi ZZ/4) = cos(phi/4) I + i sin(phi/4) ZZ
+  is a ZZ error with probability sin^2(phi/4) (common practice for coherent
+  errors, e.g. Wallman & Emerson, PRA 94, 052325 (2016); worked value in
+  tests/test_placement_noise.py). Qubits outside the patch are not modelled.
+
 The sweep's ``scale`` s multiplies every error probability and every 1/T1 and
 1/T2 (s = 0.5: a device twice as good everywhere; s = 0: noiseless).
-Per-qubit and per-pair values apply where the device file maps the code's
-qubits onto device qubits (``[[layouts]]``); defaults otherwise.
+Per-qubit and per-pair values apply where the code's qubits sit on device
+qubits: a hand-written ``[[layouts]]`` entry, or, on a device with a coupling
+graph, the automatic placement (:mod:`codebench.noise.placement`; the device's
+``placement``: best, worst, median or an explicit list). A device without a
+coupling graph and without a layout uses its defaults, as before placements
+existed. A gate layer lasts as long as its slowest coupler (``gate_2q_ns`` per
+coupler where given).
 """
 
 from __future__ import annotations
 
+import copy
 import math
 from collections.abc import Mapping
 from pathlib import Path
-from typing import ClassVar
+from typing import Any, ClassVar
 
 import stim
 
 from codebench.circuits import GateSet, IdealCircuit, Layer, NoiseOp
+from codebench.codes import CODE_FAMILIES
 from codebench.errors import DeviceFileError
 from codebench.noise.base import NoiseModel, RateMeaning, flip_for, idle_qubits
 from codebench.noise.calibration import (
@@ -46,8 +65,24 @@ from codebench.noise.calibration import (
     QubitCalibration,
     device_from_json,
     load_device,
+    parse_device,
+)
+from codebench.noise.placement import (
+    PROXY_ROUNDS,
+    Placement,
+    Ranked,
+    embeddings,
+    interaction_graph,
+    pick,
+    rank,
+    unplaced_problem,
 )
 from codebench.options import OptionSpec
+
+#: Ranked placements per (device content, code, distance), shared by every model of one process.
+_RANKED: dict[tuple[str, str, int, str], list[Ranked]] = {}
+#: How many placements were found for the same keys (more than ranked when above MAX_RANKED).
+_FOUND: dict[tuple[str, str, int, str], int] = {}
 
 #: Largest valid total probability of stim's DEPOLARIZE1 / DEPOLARIZE2 and of a flip.
 MAX_DEPOLARIZE1, MAX_DEPOLARIZE2, MAX_FLIP = 0.75, 15 / 16, 0.5
@@ -89,6 +124,18 @@ def twirled_idle(t_us: float, t1_us: float, t2_us: float) -> tuple[float, float,
     return px, px, max(0.0, pz)
 
 
+def zz_error(zz_khz: float, t_ns: float) -> float:
+    """Probability of the twirled ZZ error after idling ``t_ns`` on a coupler with ZZ rate ``zz_khz``.
+
+    sin^2(phi / 4) with phi = 2 pi zeta t (see the module docstring).
+
+    >>> round(zz_error(100.0, 1000.0), 6)   # 100 kHz for 1 us: phi = 0.2 pi
+    0.024472
+    """
+    phi = 2 * math.pi * zz_khz * 1e3 * t_ns * 1e-9
+    return math.sin(phi / 4) ** 2
+
+
 class DeviceNoise(NoiseModel):
     """Noise derived from a device calibration file, scaled by ``p`` (the what-if factor)."""
 
@@ -108,11 +155,21 @@ class DeviceNoise(NoiseModel):
         self.device_json = options["device"]
         self.device: Device = device_from_json(self.device_json)
         self._map: dict[int, str | None] = {}
+        self._zz_pairs: list[tuple[int, int, float]] = []
+
+    source_overrides: ClassVar[tuple[str, ...]] = ("placement",)
 
     @classmethod
-    def options_from_source(cls, path: Path) -> dict[str, str]:
-        """The device file at ``path``, checked and in canonical form (its content defines the point)."""
-        return {"device": load_device(path).canonical_json()}
+    def options_from_source(cls, path: Path, **overrides: Any) -> dict[str, str]:
+        """The device file at ``path``, checked and in canonical form (its content defines the point).
+
+        A study's ``placement`` replaces the file's (best / worst / median or a list of device qubits).
+        """
+        device = load_device(path)
+        if "placement" in overrides:
+            data = dict(device.data, placement=overrides["placement"])
+            device = parse_device(data, f"{path} with the study's placement")
+        return {"device": device.canonical_json()}
 
     @classmethod
     def display_options(cls, options: Mapping[str, str]) -> dict[str, str]:
@@ -142,35 +199,156 @@ class DeviceNoise(NoiseModel):
 
     def _device_qubits(self, ideal: IdealCircuit) -> dict[int, str | None]:
         layout = ideal.layout
-        mapping = self.device.layout_map(layout.family, layout.distance)
+        mapping = self.placement(layout.family, layout.distance)
         if mapping is None:
             return {q: None for q in ideal.qubits}
-        # The device file's reader checked the count (one device qubit per code qubit).
-        assert len(mapping) == len(ideal.qubits)
+        if len(mapping) != len(ideal.qubits):  # an explicit placement (the reader checked [[layouts]])
+            raise DeviceFileError(
+                f"device {self.device.name!r}: placement must list {len(ideal.qubits)} device "
+                f"qubits (one per qubit of {layout.family} d={layout.distance}); got {len(mapping)}."
+            )
         return {q: mapping[i] for i, q in enumerate(ideal.qubits)}
 
+    def placement(self, code: str, distance: int) -> tuple[str, ...] | None:
+        """The device qubit of each code qubit (``None``: no map, the defaults apply).
+
+        A ``[[layouts]]`` entry wins; else, on a device with a coupling graph, the placement the
+        device's ``placement`` names (an explicit list, or best / worst / median by the proxy).
+        Raises :class:`DeviceFileError` when the patch does not fit.
+        """
+        mapping = self.device.layout_map(code, distance)
+        if mapping is not None or not self.device.geometry.has_graph:
+            return mapping
+        choice = self.device.placement
+        if not isinstance(choice, str):
+            return choice
+        return pick(self.ranked_placements(code, distance), choice).qubits
+
+    @classmethod
+    def options_for(cls, options: tuple[tuple[str, str], ...], code: str,
+                    distance: int) -> tuple[tuple[str, str], ...]:
+        """The device with the placement of ``code`` at ``distance`` written in as a ``[[layouts]]`` entry.
+
+        Placing is done once, where the points are made; the points carry the device qubits they use in
+        their key, and workers read the layout instead of ranking the placements again. A device without
+        a coupling graph, or with a hand-written layout for the code and distance, is left as it is.
+        """
+        given = dict(options)
+        if "device" not in given:
+            return options
+        device = device_from_json(given["device"])
+        if not device.geometry.has_graph or device.layout_map(code, distance) is not None:
+            return options
+        qubits = cls(1.0, device=given["device"]).placement(code, distance)
+        assert qubits is not None
+        data = copy.deepcopy(device.data)
+        chosen = device.placement if isinstance(device.placement, str) else "placement"
+        data["layouts"] = list(data.get("layouts", [])) + [
+            {"code": code, "distance": distance, "qubits": list(qubits), "chosen_by": chosen}]
+        given["device"] = parse_device(data, "<placed device>").canonical_json()
+        return tuple(sorted(given.items()))
+
+    def qubit_note(self, code: str, distance: int) -> str | None:
+        """``"<code> d=<d> on device qubits a, b, ... (best placement)"``, or ``None`` without a map."""
+        qubits = self.placement(code, distance)
+        if qubits is None or len(qubits) != CODE_FAMILIES[code].qubit_count(distance):
+            return None  # no map, or a placement list of the wrong length (the circuit build says so)
+        how = "[[layouts]]"
+        for entry in self.device.data.get("layouts", []):
+            if (entry.get("code"), entry.get("distance")) == (code, distance) and "chosen_by" in entry:
+                how = f"{entry['chosen_by']} placement by the proxy" if entry["chosen_by"] != "placement" \
+                    else "the device's placement list"
+        if self.device.layout_map(code, distance) is None:
+            how = (f"{self.device.placement} of {self.placements_found(code, distance)} placements by the proxy"
+                   if isinstance(self.device.placement, str) else "the device's placement list")
+        return f"{code} d={distance} on device qubits {', '.join(qubits)} ({how})"
+
+    def ranked_placements(self, code: str, distance: int) -> list[Ranked]:
+        """Every placement of the code on the device's usable qubits, best first (at the device's own numbers)."""
+        dev = self.device
+        choice = dev.placement if isinstance(dev.placement, str) else "best"
+        key = (dev.canonical_json(), code, distance, choice)
+        if key not in _RANKED:
+            family = CODE_FAMILIES[code]
+            gate_set = self.circuit_gate_set()
+            qubits, pairs = interaction_graph(family, distance, gate_set)
+            found = embeddings(dev.geometry, qubits, pairs)
+            if not found:
+                raise DeviceFileError(f"device {dev.name!r}: "
+                                      + unplaced_problem(dev.geometry, family, distance, gate_set))
+            own = DeviceNoise(1.0, device=self.device_json)
+            ideals = [family.ideal_circuit(distance, min(distance, PROXY_ROUNDS), b, gate_set) for b in family.bases]
+
+            def circuits(candidate: Placement) -> list[stim.Circuit]:
+                return [own.decorate_on(ideal, candidate) for ideal in ideals]
+
+            def cheap(candidate: Placement) -> float:
+                cals = [dev.qubit(q) for q in candidate]
+                return (sum(c.readout_error + c.gate_1q_error + c.reset_error + 1 / c.t1_us + 1 / c.t2_us
+                            for c in cals)
+                        + sum(dev.pair_error(candidate[qubits.index(a)], candidate[qubits.index(b)])
+                              for a, b in pairs))
+
+            _RANKED[key] = rank(found, circuits, cheap, choice)
+            _FOUND[key] = len(found)
+        return _RANKED[key]
+
+    def placements_found(self, code: str, distance: int) -> int:
+        """How many placements exist (up to the enumeration's limit); the ranked ones may be fewer."""
+        self.ranked_placements(code, distance)
+        dev = self.device
+        return _FOUND[(dev.canonical_json(), code, distance, dev.placement if isinstance(dev.placement, str)
+                       else "best")]
+
     def decorate(self, ideal: IdealCircuit) -> stim.Circuit:
-        self._map = self._device_qubits(ideal)
+        self._use_map(ideal, self._device_qubits(ideal))
         self._check_coupling(ideal)
         return super().decorate(ideal)
+
+    def decorate_on(self, ideal: IdealCircuit, placement: Placement) -> stim.Circuit:
+        """The noisy circuit with the code's qubits on ``placement`` (device qubit per code qubit)."""
+        self._use_map(ideal, {q: placement[i] for i, q in enumerate(ideal.qubits)})
+        return super().decorate(ideal)
+
+    def _use_map(self, ideal: IdealCircuit, mapping: dict[int, str | None]) -> None:
+        self._map = mapping
+        geometry = self.device.geometry
+        self._zz_pairs = []
+        if not geometry.has_graph or all(v is None for v in mapping.values()):
+            return
+        code_of = {dev: q for q, dev in mapping.items() if dev is not None}
+        for edge in sorted(geometry.edges, key=sorted):
+            a, b = sorted(edge)
+            if a in code_of and b in code_of and geometry.zz_of(edge) > 0:
+                self._zz_pairs.append((code_of[a], code_of[b], geometry.zz_of(edge)))
 
     def _check_coupling(self, ideal: IdealCircuit) -> None:
         edges = self.device.edges
         if edges is None or all(v is None for v in self._map.values()):
             return
+        geometry = self.device.geometry
+        for q, dev in self._map.items():
+            if dev in geometry.dead_qubits:
+                raise DeviceFileError(f"device {self.device.name!r}: {ideal.layout.family} d={ideal.layout.distance} "
+                                      f"would use qubit {dev}, which is marked usable = false.")
         for layer in ideal.layers:
             if layer.kind != "gate2":
                 continue
             for op in layer.ops:
                 for a, b in zip(op.targets[::2], op.targets[1::2]):
                     pair = frozenset((str(self._map[a]), str(self._map[b])))
-                    if pair not in edges:
+                    if pair not in edges or pair in geometry.dead_pairs:
+                        lacks = "which [coupling] lacks" if pair not in edges else "a coupler marked usable = false"
                         raise DeviceFileError(
                             f"device {self.device.name!r}: {ideal.layout.family} d={ideal.layout.distance} needs "
-                            f"a two-qubit gate between {self._map[a]} and {self._map[b]}, which [coupling] lacks."
+                            f"a two-qubit gate between {self._map[a]} and {self._map[b]}, {lacks}."
                         )
 
     def layer_duration_ns(self, layer: Layer) -> float:
+        """The layer's duration: its kind's, or for two-qubit gates that of its slowest coupler."""
+        if layer.kind == "gate2" and self.device.geometry.pair_ns and self._map:
+            return max(self.device.coupler_ns(self._map[a], self._map[b])
+                       for op in layer.ops for a, b in zip(op.targets[::2], op.targets[1::2]))
         return self.device.durations_ns[_DURATION_OF[layer.kind]]
 
     def layer_noise(self, layer: Layer, ideal: IdealCircuit) -> tuple[list[NoiseOp], list[NoiseOp]]:
@@ -180,6 +358,11 @@ class DeviceNoise(NoiseModel):
         after: list[NoiseOp] = []
         for q in idle_qubits(layer, ideal):
             after.append(("PAULI_CHANNEL_1", [q], self.idle_channel(dev.qubit(self._map[q]), duration)))
+        busy = layer.qubits
+        for a, b, zz in self._zz_pairs:
+            if a not in busy and b not in busy:
+                pzz = self._scaled(zz_error(zz, duration), MAX_FLIP)
+                after.append(("PAULI_CHANNEL_2", [a, b], [0.0] * 14 + [pzz]))
         for op in layer.ops:
             if layer.kind == "gate1":
                 for q in op.targets:
@@ -207,4 +390,5 @@ class DeviceNoise(NoiseModel):
     def round_duration_ns(self, ideal: IdealCircuit) -> float:
         """Duration of one syndrome round (round 1 when there is one: round 0 also prepares data)."""
         which = 1 if ideal.rounds > 1 else 0
+        self._use_map(ideal, self._device_qubits(ideal))
         return sum(self.layer_duration_ns(layer) for layer in ideal.layers if layer.round == which)
