@@ -159,6 +159,39 @@ def cmd_circuit(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _point_options(verb: argparse.ArgumentParser) -> None:
+    """The options that name one point: a sweep file and --point, or the point's own options."""
+    verb.add_argument("config", nargs="?", help="sweep file; pick the point with --point")
+    verb.add_argument("--point", type=int, help="index of the point in the sweep's grid, from 0")
+    verb.add_argument("--code", help="code family (without a sweep file)")
+    verb.add_argument("--distance", type=int)
+    verb.add_argument("--rounds", help="rounds: an integer or a multiple of d such as 'd'")
+    verb.add_argument("--basis", default="Z")
+    verb.add_argument("--noise")
+    verb.add_argument("--p", type=float, help="the noise model's rate (for device noise: its scale, default 1)")
+    verb.add_argument("--device", help="device calibration file: device noise in its native gates, qubits named "
+                                       "by its [[layouts]] entry for the code and distance")
+
+
+def cmd_qasm(args: argparse.Namespace) -> int:
+    from codebench.files import write_text
+    from codebench.pointspec import point_from_args
+    from codebench.qasm import export_point
+
+    point = point_from_args(args)
+    program = Path(args.out)
+    if program.suffix == ".json":
+        raise ConfigError(not_allowed("--out", args.out, "the program's path (the description is written beside "
+                                      "it with the suffix .json)"))
+    exported = export_point(point)
+    described = program.with_suffix(".json")
+    write_text(program, exported.program)
+    write_text(described, exported.description_text())
+    print(f"wrote {program} ({exported.description.measurements} measurement bits, "
+          f"{len(exported.description.detectors)} detectors) and {described}")
+    return EXIT_OK
+
+
 def _distances(text: str) -> list[int]:
     try:
         values = [int(part) for part in text.split(",") if part.strip()]
@@ -272,16 +305,15 @@ def build_parser() -> argparse.ArgumentParser:
         verb_parser.set_defaults(func=func)
 
     circuit = sub.add_parser("circuit", help="print one point's noisy stim circuit")
-    circuit.add_argument("config", nargs="?", help="sweep file; pick the point with --point")
-    circuit.add_argument("--point", type=int, help="index of the point in the sweep's grid, from 0")
+    _point_options(circuit)
     circuit.add_argument("--list", action="store_true", help="list the sweep's points with their indices")
-    circuit.add_argument("--code", help="code family (without a sweep file)")
-    circuit.add_argument("--distance", type=int)
-    circuit.add_argument("--rounds", help="rounds: an integer or a multiple of d such as 'd'")
-    circuit.add_argument("--basis", default="Z")
-    circuit.add_argument("--noise")
-    circuit.add_argument("--p", type=float)
     circuit.set_defaults(func=cmd_circuit)
+
+    qasm = sub.add_parser("qasm", help="export one point's experiment as OpenQASM 3 plus its description (JSON)")
+    _point_options(qasm)
+    qasm.add_argument("--out", required=True,
+                      help="program file to write (e.g. experiment.qasm); the description goes beside it (.json)")
+    qasm.set_defaults(func=cmd_qasm)
 
     fc = sub.add_parser("forecast", help="forecast a device's logical qubit from its calibration file")
     fc.add_argument("device", help="device calibration file (TOML or JSON)")

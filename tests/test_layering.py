@@ -25,7 +25,7 @@ STAGES: dict[str, float] = {
     "codes": 2,
     "noise": 3,
     "decoders": 4,
-    "build": 5,
+    "build": 5, "qasm": 5.5,
     "results": 6,
     "engine": 7,
     "config": 8, "pointspec": 8.5,

@@ -179,6 +179,13 @@ class DeviceNoise(NoiseModel):
     def layer_duration_ns(self, layer: Layer) -> float:
         return self.device.durations_ns[_DURATION_OF[layer.kind]]
 
+    def qubit_names(self, ideal: IdealCircuit) -> dict[int, str] | None:
+        """Device qubit of each code qubit, from the file's ``[[layouts]]`` entry (``None`` without one)."""
+        mapping = self._device_qubits(ideal)
+        if any(name is None for name in mapping.values()):
+            return None
+        return {q: str(name) for q, name in mapping.items()}
+
     def layer_noise(self, layer: Layer, ideal: IdealCircuit) -> tuple[list[NoiseOp], list[NoiseOp]]:
         dev = self.device
         duration = self.layer_duration_ns(layer)
