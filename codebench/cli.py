@@ -23,7 +23,10 @@ from codebench.errors import (
 from codebench.stats import INTERVALS
 
 if TYPE_CHECKING:
+    import numpy as np
     import pandas as pd
+
+    from codebench.lab.experiment import Experiment
 
     from codebench.analysis import AnalysisResult
 
@@ -192,6 +195,68 @@ def cmd_qasm(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _weights(text: str) -> list[str]:
+    chosen = [part.strip() for part in text.split(",") if part.strip()]
+    if not chosen or not set(chosen) <= {"model", "data"}:
+        raise argparse.ArgumentTypeError(not_allowed("--weights", text, "model, data or model,data"))
+    return list(dict.fromkeys(chosen))
+
+
+def _lab_experiment(args: argparse.Namespace) -> tuple[Experiment, np.ndarray, np.ndarray]:
+    """(experiment, detection events, observable flips) of the records named on the command line."""
+    from codebench.lab.experiment import experiment_of, with_decoder
+    from codebench.lab.shots import read_records
+    from codebench.pointspec import point_from_args
+    from codebench.qasm import load_description
+
+    description = load_description(args.description) if args.description else None
+    named = args.config is not None or args.code is not None or args.device is not None
+    point = point_from_args(args) if named else None
+    experiment = experiment_of(point, description, f"description '{args.description}'")
+    experiment.point = with_decoder(experiment.point, args.decoder)
+    records = read_records(args.records, experiment.bits, args.format)
+    dets, obs = experiment.events(records)
+    return experiment, dets, obs
+
+
+def cmd_lab_decode(args: argparse.Namespace) -> int:
+    from codebench.lab.decoding import decode_with
+    from codebench.lab.record import record_measured
+    from codebench.tables import summary_table
+
+    experiment, dets, obs = _lab_experiment(args)
+    decoded = {weights: decode_with(weights, experiment, dets, obs) for weights in args.weights}
+    frame = record_measured(Path(args.out), experiment, decoded, args.study, Path(args.records))
+    print(summary_table(frame[frame["source"] == "measured"]))
+    print(f"\nwrote {Path(args.out) / 'results.csv'} and {Path(args.out) / 'results.sqlite'}")
+    return EXIT_OK
+
+
+def cmd_lab_inspect(args: argparse.Namespace) -> int:
+    from codebench.figures.lab import write_lab_figures
+    from codebench.lab.departures import analyse
+    from codebench.lab.tables import summary, write_tables
+
+    experiment, dets, obs = _lab_experiment(args)
+    result = analyse(experiment, dets, obs)
+    out = Path(args.out)
+    write_tables(out, result)
+    figures = write_lab_figures(out, result)
+    print(summary(result))
+    print(f"\nwrote the tables, reweighted.dem and {len(figures)} figures (PNG and SVG) into {out}")
+    return EXIT_OK
+
+
+def _lab_options(verb: argparse.ArgumentParser) -> None:
+    verb.add_argument("records", help="measured records: one row per shot, one bit per measurement (.01, .b8, .r8 "
+                                      "or .npy)")
+    _point_options(verb)
+    verb.add_argument("--description", help="the experiment's description file (JSON, from `codebench qasm`)")
+    verb.add_argument("--format", choices=["01", "b8", "r8", "npy"], help="format of the records (default: suffix)")
+    verb.add_argument("--decoder", help="decoder (default: the point's)")
+    verb.add_argument("--out", required=True, help="folder to write into")
+
+
 def _distances(text: str) -> list[int]:
     try:
         values = [int(part) for part in text.split(",") if part.strip()]
@@ -314,6 +379,21 @@ def build_parser() -> argparse.ArgumentParser:
     qasm.add_argument("--out", required=True,
                       help="program file to write (e.g. experiment.qasm); the description goes beside it (.json)")
     qasm.set_defaults(func=cmd_qasm)
+
+    lab = sub.add_parser("lab", help="measured records: decode them, see where the device departs from its model")
+    lab_verbs = lab.add_subparsers(dest="lab_verb", required=True, parser_class=_Parser)
+    decode = lab_verbs.add_parser("decode", help="decode measured records into a point of a results folder "
+                                                 "(source = measured)")
+    _lab_options(decode)
+    decode.add_argument("--weights", type=_weights, default=["model", "data"],
+                        help="model (the model's weights), data (learned from the other half of the shots), or "
+                             "model,data (default)")
+    decode.add_argument("--study", default="measured", help="study label of the measured point (default: measured)")
+    decode.set_defaults(func=cmd_lab_decode)
+    inspect = lab_verbs.add_parser("inspect", help="where the records depart from the model: tables, figures, "
+                                                   "re-weighted model")
+    _lab_options(inspect)
+    inspect.set_defaults(func=cmd_lab_inspect)
 
     fc = sub.add_parser("forecast", help="forecast a device's logical qubit from its calibration file")
     fc.add_argument("device", help="device calibration file (TOML or JSON)")
