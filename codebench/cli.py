@@ -26,9 +26,8 @@ if TYPE_CHECKING:
     import numpy as np
     import pandas as pd
 
-    from codebench.lab.experiment import Experiment
-
     from codebench.analysis import AnalysisResult
+    from codebench.lab.experiment import Experiment
 
 EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 

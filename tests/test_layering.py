@@ -30,7 +30,7 @@ STAGES: dict[str, float] = {
     "engine": 7,
     "config": 8, "pointspec": 8.5,
     "analysis": 9,
-    "api": 10,
+    "api": 10, "lab": 10.5,
     "testing": 11,
     "forecast": 12,
     "tables": 13, "figures": 13,

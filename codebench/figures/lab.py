@@ -70,6 +70,7 @@ def pair_matrix(result: Departures) -> Figure:
         ax.scatter(np.concatenate([second, first]), np.concatenate([first, second]), s=14, facecolors="none",
                    edgecolors="white", linewidths=0.6, label="edge of the model's graph")
         ax.legend(loc="upper right", fontsize=9)
+    ax.grid(False)
     fig.colorbar(image, ax=ax, label="two-point estimate p_ij (probability)")
     ax.set_xlabel("detector j")
     ax.set_ylabel("detector i")
@@ -96,7 +97,7 @@ def qubit_map(result: Departures) -> Figure:
     sizes = [max(0.0, worst.get(q.name, 0.0)) for q in description.qubits]
     top = max(sizes) or 1.0
     ax.scatter(xs, ys, s=[420 + 900 * s / top for s in sizes], facecolors="none", edgecolors=MEASURED,
-               linewidths=1.4, zorder=1, label="ring: worst fault source (z of its fit)")
+               linewidths=1.4, zorder=1)
     for q in description.qubits:
         ax.annotate(q.name, (q.coords[0], q.coords[1]), ha="center", va="center", fontsize=8, color=INK, zorder=3)
     fig.colorbar(shades, ax=ax, label="excess detection fraction (measured - model)")
@@ -104,8 +105,9 @@ def qubit_map(result: Departures) -> Figure:
     ax.set_ylabel("y (code coordinate)")
     ax.set_aspect("equal")
     ax.margins(0.15)
-    ax.legend(loc="upper right", fontsize=9)
-    ax.annotate("grey: no detector of its own (data qubit); white: as the model predicts",
+    ax.grid(False)
+    ax.annotate("grey: no detector of its own (data qubit); orange ring: the larger, the more its worst fault "
+                "source departs",
                 xy=(0, -0.16), xycoords="axes fraction", fontsize=8.5, color=MUTED)
     titles(ax, "Where the device departs from its model", _subline(result))
     return fig

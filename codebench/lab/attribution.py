@@ -11,9 +11,11 @@ by (1 + k) is least squares in k alone:
     k = sum_e w_e r_e c_e / sum_e w_e c_e^2,    z = sum_e w_e r_e c_e / sqrt(sum_e w_e c_e^2),
 
 z being the improvement of the fit in standard errors (a matched filter; common practice for linear
-least squares). Sources are ranked by z: the first is the single source that, made worse by the
-factor 1 + k, explains the most of what the data show (linear in the probabilities, so a guide for
-small rates, not a calibration).
+least squares). Sources are ranked by forward selection (common practice for regression): the first
+is the single source that, made worse by the factor 1 + k, explains the most of what the data show;
+its fitted part is taken off the departures, and the next is the best explanation of what is left,
+and so on (k and z as fitted when a source is chosen). Linear in the probabilities: a guide for small
+rates, not a calibration.
 """
 
 from __future__ import annotations
@@ -119,13 +121,29 @@ def rank_sources(circuit: stim.Circuit, estimates: EdgeEstimates, names: dict[in
                 contribution[index[edge]] = p
         if float(np.sum(weight * contribution ** 2)) > 0:
             _add(groups, kind, qubits, contribution, weight)
+    return _forward_selection(groups, residual, weight, names)
+
+
+def _forward_selection(groups: list[tuple[list[str], tuple[int, ...], np.ndarray]], residual: np.ndarray,
+                       weight: np.ndarray, names: dict[int, str]) -> list[Source]:
+    """Rank sources greedily: the best single explanation, then the best of the rest for what it leaves."""
+    left = list(range(len(groups)))
+    residual = residual.copy()
     ranked = []
-    for kinds, qubits, contribution in groups:
-        norm = float(np.sum(weight * contribution ** 2))
-        dot = float(np.sum(weight * residual * contribution))
-        ranked.append(Source("/".join(kinds), tuple(names.get(q, str(q)) for q in qubits), dot / norm,
-                             dot / math.sqrt(norm)))
-    return sorted(ranked, key=lambda source: -source.z)
+    while left:
+        scores = []
+        for n in left:
+            contribution = groups[n][2]
+            norm = float(np.sum(weight * contribution ** 2))
+            dot = float(np.sum(weight * residual * contribution))
+            scores.append((dot / math.sqrt(norm), dot / norm, n))
+        z, k, n = max(scores)
+        kinds, qubits, contribution = groups[n]
+        ranked.append(Source("/".join(kinds), tuple(names.get(q, str(q)) for q in qubits), k, z))
+        if z > 0:
+            residual = residual - k * contribution
+        left.remove(n)
+    return ranked
 
 
 #: Sources on the same qubits whose (weighted, normalised) contributions agree this well cannot be told

@@ -60,7 +60,8 @@ def predicted_fractions(dem: stim.DetectorErrorModel) -> np.ndarray:
 
 
 def model_pair_products(dem: stim.DetectorErrorModel) -> dict[tuple[int, int], float]:
-    """prod_k (1 - 2 p_k) over the mechanisms k that flip both i and j, for every pair (i < j) some flips."""
+    """prod_k (1 - 2 p_k) over the mechanisms k that flip both i and j, for every pair (i < j) some flips;
+    under the key (i, -1), over the mechanisms that flip detector i alone."""
     products: dict[tuple[int, int], float] = {}
     for instruction in dem.flattened():
         if instruction.type != "error":
@@ -71,6 +72,8 @@ def model_pair_products(dem: stim.DetectorErrorModel) -> dict[tuple[int, int], f
             if t.is_relative_detector_id():
                 counts[t.val] = counts.get(t.val, 0) + 1
         flipped = sorted(d for d, times in counts.items() if times % 2)
+        if len(flipped) == 1:
+            products[(flipped[0], -1)] = products.get((flipped[0], -1), 1.0) * factor
         for n, a in enumerate(flipped):
             for b in flipped[n + 1:]:
                 products[(a, b)] = products.get((a, b), 1.0) * factor

@@ -23,10 +23,15 @@ from dataclasses import dataclass
 import numpy as np
 import stim
 
-from codebench.lab.correlations import model_pair_probabilities, pair_estimates, pair_matrix, predicted_fractions
+from codebench.lab.attribution import Source, rank_sources
+from codebench.lab.correlations import (
+    model_pair_probabilities,
+    pair_estimates,
+    pair_matrix,
+    predicted_fractions,
+)
 from codebench.lab.decoding import Decoded, data_weighted, model_weighted
 from codebench.lab.experiment import Experiment
-from codebench.lab.attribution import Source, rank_sources
 from codebench.lab.graph import BOUNDARY, EdgeEstimates, estimate_edges, model_graph
 from codebench.qasm.description import Description
 from codebench.stats import binomial_interval

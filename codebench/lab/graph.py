@@ -17,7 +17,12 @@ from dataclasses import dataclass
 import numpy as np
 import stim
 
-from codebench.lab.correlations import boundary_probability, fractions, model_pair_products, pair_estimates
+from codebench.lab.correlations import (
+    boundary_probability,
+    fractions,
+    model_pair_products,
+    pair_estimates,
+)
 
 BOUNDARY = -1
 
@@ -33,8 +38,9 @@ class Graph:
     observables: list[int]
     coords: dict[int, list[float]]
     #: What the data's estimate of each edge should be if the model were right: the two-point value of
-    #: every mechanism flipping both ends (hyperedges included) for an edge, the probability for a boundary
-    #: edge.
+    #: every mechanism flipping both ends (hyperedges included) for an edge, of every mechanism flipping its
+    #: detector alone for a boundary edge (the model not decomposed; a decomposition may split a two-detector
+    #: mechanism into two boundary parts).
     expected: np.ndarray
 
     @property
@@ -73,9 +79,8 @@ def model_graph(dem: stim.DetectorErrorModel, full: stim.DetectorErrorModel | No
     expected = probabilities.copy()
     if full is not None:
         products = model_pair_products(full)
-        for n, (i, j) in enumerate(edges):
-            if j != BOUNDARY:
-                expected[n] = (1 - products.get((i, j), 1.0)) / 2
+        for n, edge in enumerate(edges):
+            expected[n] = (1 - products.get(edge, 1.0)) / 2
     return Graph(dem.num_detectors, dem.num_observables, edges, probabilities, [observable[e] for e in edges],
                  {k: list(v) for k, v in dem.get_detector_coordinates().items()}, expected)
 

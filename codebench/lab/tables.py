@@ -64,8 +64,8 @@ def summary(result: Departures) -> str:
     for q in result.by_fraction[:SHOWN]:
         lines.append(f"  {q.qubit:>8} ({q.role}) excess {q.excess:+.4f} per detector over {q.items} detectors, "
                      f"z = {q.z:+.1f}")
-    lines += ["", "Fault sources that alone explain most of the edges' departure (factor = how much worse "
-              "than the model):"]
+    lines += ["", "Fault sources, each the best explanation of the edges' departure that those above leave "
+              "(factor = how much worse than the model):"]
     for s in result.sources[:SHOWN]:
         lines.append(f"  {s.label:<34} factor {s.factor:6.2f}  z = {s.z:+.1f}")
     if result.pairs:
