@@ -5,6 +5,7 @@ from __future__ import annotations
 from typing import Callable, Protocol, Sequence, TypeVar
 
 from codebench.analysis.families import FamilyId
+from codebench.analysis.measured import MeasuredComparison
 from codebench.analysis.records import (
     FssThreshold,
     LambdaEstimate,
@@ -109,6 +110,17 @@ def analysis_table(result: AnalysisResult) -> str:
         _table("Projections (from the Lambda fit; extrapolated beyond the fitted distances where marked)",
                result.projections, projections),
     ]
+    if result.measured:
+        measured: list[Column[MeasuredComparison]] = [
+            ("study", lambda r: r.study), ("code", lambda r: r.code), ("d", lambda r: r.distance),
+            ("rounds", lambda r: r.rounds), ("basis", lambda r: r.basis), ("noise", lambda r: r.noise),
+            ("p", lambda r: r.p), ("decoder", lambda r: r.decoder), ("shots", lambda r: r.shots),
+            ("measured/round", lambda r: r.per_round), ("95% low", lambda r: r.per_round_low),
+            ("95% high", lambda r: r.per_round_high), ("simulated/round", lambda r: r.simulated_per_round),
+            ("95% low", lambda r: r.simulated_low), ("95% high", lambda r: r.simulated_high),
+            ("measured/simulated", lambda r: r.ratio)]
+        sections.append(_table("Measured beside simulated (per-round logical error; source = measured)",
+                               result.measured, measured))
     if result.notes:
         sections.append("Notes\n=====\n" + "\n".join(f"- {n}" for n in result.notes))
     return "\n\n".join(sections)

@@ -17,6 +17,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from codebench.analysis.families import FamilyId
+from codebench.analysis.measured import MeasuredComparison
 from codebench.analysis.records import (
     LambdaEstimate,
     LambdaPair,
@@ -76,6 +77,8 @@ class AnalysisResult:
     families: tuple[FamilyAnalysis, ...]
     settings: AnalysisSettings
     general_notes: tuple[str, ...] = ()
+    #: Measured points beside their simulated twins (``codebench lab decode``); in the JSON only when any.
+    measured: tuple[MeasuredComparison, ...] = ()
 
     @property
     def thresholds(self) -> tuple[ThresholdEstimate, ...]:
@@ -121,7 +124,7 @@ class AnalysisResult:
             "projections": [r.to_json() for r in self.projections],
             "notes": list(self.notes),
             "settings": self.settings.to_json(),
-        }
+        } | ({"measured": [r.to_json() for r in self.measured]} if self.measured else {})
 
 
 __all__ = ["CONFIDENCE", "AnalysisResult", "AnalysisSettings", "FamilyAnalysis"]

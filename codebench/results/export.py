@@ -27,6 +27,8 @@ EXTRA_COLUMNS = [
 ]
 #: Values of the ``source`` column: sampled by codebench, or decoded from records measured on a device.
 SOURCES = ("simulated", "measured")
+#: Added to the decoder column of a measured point decoded with weights learned from its data.
+DATA_WEIGHTS = " (data weights)"
 
 
 def _options_column(noise: str, options: dict[str, str]) -> str:
@@ -131,7 +133,7 @@ def _measured_row(result: MeasuredResult, interval: str) -> dict[str, object]:
         "key": result.key, "source": "measured",
     }
     if result.weights == "data":
-        row["decoder"] = f"{point.decoder} (data weights)"
+        row["decoder"] = f"{point.decoder}{DATA_WEIGHTS}"
     return row
 
 
