@@ -148,7 +148,7 @@ def _forward_selection(groups: list[tuple[list[str], tuple[int, ...], np.ndarray
 
 #: Sources on the same qubits whose (weighted, normalised) contributions agree this well cannot be told
 #: apart by detection events; they are fitted and listed as one (kinds joined by "/", largest first).
-ALIKE = 0.999
+ALIKE = 0.99
 
 
 def _add(groups: list[tuple[list[str], tuple[int, ...], np.ndarray]], kind: str, qubits: tuple[int, ...],

@@ -75,7 +75,8 @@ def summary(result: Departures) -> str:
                          f"z = {p.z:+.1f}")
     if result.model_decoded is not None and result.data_decoded is not None:
         rounds = result.experiment.point.rounds
-        lines += ["", "Decoding the same shots, each half with weights learned from the other half:"]
+        lines += ["", "Every shot decoded with the model's weights, and with weights learned from the other half of "
+                  "the shots:"]
         for name, decoded in (("model weights", result.model_decoded), ("data weights", result.data_decoded)):
             low, high = binomial_interval(decoded.failures, result.shots)
             rate = decoded.failures / result.shots
