@@ -17,8 +17,7 @@ import numpy as np
 import stim
 
 from codebench.decoders import get_decoder
-from codebench.engine.worker import CompiledPoint, decode
-from codebench.errors import DecoderError
+from codebench.engine.worker import CompiledPoint, compiled_decoder, decode
 from codebench.lab.experiment import Experiment
 from codebench.lab.graph import estimate_edges, model_graph, reweighted_model
 from codebench.records import Point
@@ -39,14 +38,9 @@ class Decoded:
 
 
 def compile_decoder(point: Point, dem: stim.DetectorErrorModel, circuit: stim.Circuit) -> CompiledPoint:
-    decoder = get_decoder(point.decoder)(**dict(point.decoder_options))
-    try:
-        decoder.compile(dem)
-    except DecoderError:
-        raise
-    except Exception as exc:
-        raise DecoderError(f"decoder {point.decoder!r} failed in compile: {type(exc).__name__}: {exc}") from exc
-    return CompiledPoint(circuit, decoder, dem.num_detectors, dem.num_observables, dem, point.decoder)
+    """The point's decoder compiled for ``dem``, as the engine's workers compile it."""
+    return CompiledPoint(circuit, compiled_decoder(point, dem), dem.num_detectors, dem.num_observables, dem,
+                         point.decoder)
 
 
 def decode_events(compiled: CompiledPoint, dets: np.ndarray, obs: np.ndarray) -> Decoded:
