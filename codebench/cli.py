@@ -215,6 +215,8 @@ def _lab_experiment(args: argparse.Namespace) -> tuple[Experiment, np.ndarray, n
     experiment.point = with_decoder(experiment.point, args.decoder)
     records = read_records(args.records, experiment.bits, args.format)
     dets, obs = experiment.events(records)
+    print(f"codebench lab: {len(records):,} shots of {experiment.bits} bits read from {args.records} "
+          f"({experiment.point.label()}); decoding ...", file=sys.stderr)
     return experiment, dets, obs
 
 

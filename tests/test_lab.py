@@ -152,6 +152,8 @@ def _malformed(tmp_path: Path, case: str) -> list[str]:
         description.write_text(export_point(model_point(rounds=2)).description_text())
         return ["--device", str(DEVICE), "--code", "rotated_surface", "--distance", "3", "--rounds", "3",
                 str(path), "--description", str(description)]
+    elif case == "too few shots":
+        path = write_records(tmp_path / "shots.b8", records[:5])
     elif case == "not JSON":
         path = write_records(tmp_path / "shots.b8", records)
         description.write_text("{")
@@ -164,7 +166,7 @@ def _malformed(tmp_path: Path, case: str) -> list[str]:
 @pytest.mark.parametrize("verb", ["decode", "inspect"])
 @pytest.mark.parametrize("case", ["wrong number of bits", "records of another experiment", "truncated b8",
                                   "description of another circuit", "description against the point", "not JSON",
-                                  "bad r8"])
+                                  "bad r8", "too few shots"])
 def test_malformed_input_is_one_line_and_exit_2(tmp_path: Path, capsys: pytest.CaptureFixture[str], case: str,
                                                verb: str) -> None:
     arguments = _malformed(tmp_path, case)

@@ -4,7 +4,7 @@
   prediction (1 - prod_k (1 - 2 p_k)) / 2, and z = (measured - predicted) / sqrt(predicted (1 -
   predicted) / shots) (binomial standard error under the model; common practice).
 - Per qubit, from detection fractions: the detectors sitting on a qubit (its measure qubit), pooled
-  over rounds: excess = sum of (measured - predicted) / number of its detectors, z = sum of the excesses
+  over rounds (and per round, pooled over qubits): excess = sum of (measured - predicted) / number of its detectors, z = sum of the excesses
   / sqrt(sum of the variances). A readout that is worse than the model says shows here first.
 - Per edge of the model's graph: the data's estimate (two-point or boundary; see
   :mod:`codebench.lab.correlations`) with its standard error, against the model's probability.
@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 import stim
@@ -109,6 +110,7 @@ class Departures:
     shots: int
     detectors: list[DetectorRow]
     by_fraction: list[QubitRow]
+    by_round: list[QubitRow]
     edges: list[EdgeRow]
     sources: list[Source]
     pairs: list[PairRow]
@@ -141,7 +143,8 @@ def analyse(experiment: Experiment, dets: np.ndarray, obs: np.ndarray | None = N
              for (i, j), p_model, p_expected, p_data, err in zip(graph.edges, graph.probabilities, graph.expected,
                                                                  estimates.probabilities, estimates.errors)]
     matrix, pairs = _unexpected_pairs(dets, experiment.model(False), set(graph.edges))
-    result = Departures(experiment, shots, rows, _by_fraction(rows, description), edges,
+    result = Departures(experiment, shots, rows, _by_fraction(rows, description),
+                        _pooled(rows, lambda r: f"round {r.round}", lambda _: "round"), edges,
                         rank_sources(experiment.circuit, estimates, names), pairs, matrix, estimates)
     if obs is not None:
         result.model_decoded = model_weighted(experiment, dets, obs)
@@ -150,15 +153,21 @@ def analyse(experiment: Experiment, dets: np.ndarray, obs: np.ndarray | None = N
 
 
 def _by_fraction(rows: list[DetectorRow], description: Description) -> list[QubitRow]:
+    """Qubits ranked by the pooled departure of their detectors."""
     roles = {q.name: q.role for q in description.qubits}
+    return _pooled(rows, lambda r: r.qubit, lambda name: roles.get(name, ""))
+
+
+def _pooled(rows: list[DetectorRow], key: Callable[[DetectorRow], str], role: Callable[[str], str]) -> list[QubitRow]:
+    """Detectors pooled by ``key``: mean excess per detector, z of the summed excess; ranked by z."""
     groups: dict[str, list[DetectorRow]] = {}
     for row in rows:
-        groups.setdefault(row.qubit, []).append(row)
+        groups.setdefault(key(row), []).append(row)
     out = []
-    for qubit, members in groups.items():
+    for name, members in groups.items():
         excess = sum(r.fraction - r.predicted for r in members)
         variance = sum(r.predicted * (1 - r.predicted) / r.shots for r in members)
-        out.append(QubitRow(qubit, roles.get(qubit, ""), excess / len(members),
+        out.append(QubitRow(name, role(name), excess / len(members),
                             excess / math.sqrt(variance) if variance > 0 else float("nan"), len(members)))
     return sorted(out, key=lambda r: -r.z if math.isfinite(r.z) else math.inf)
 

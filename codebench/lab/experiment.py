@@ -23,6 +23,9 @@ from codebench.qasm.description import Description
 from codebench.qasm.writer import description_of
 from codebench.records import Point
 
+#: Fewest shots the lab commands take (two halves of ten blocks of at least one shot).
+MIN_SHOTS = 20
+
 
 @dataclass
 class Experiment:
@@ -43,6 +46,9 @@ class Experiment:
 
     def events(self, records: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(detection events, observable flips) of the records, bool, one row per shot."""
+        if len(records) < MIN_SHOTS:
+            raise DataError(f"{len(records)} shots are too few to analyse; give at least {MIN_SHOTS} (data weights "
+                            "and standard errors cut the shots into halves and blocks).")
         converter = self.circuit.compile_m2d_converter()
         dets, obs = converter.convert(measurements=records.astype(bool), separate_observables=True)
         return np.asarray(dets, dtype=bool), np.asarray(obs, dtype=bool)

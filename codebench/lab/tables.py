@@ -64,6 +64,9 @@ def summary(result: Departures) -> str:
     for q in result.by_fraction[:SHOWN]:
         lines.append(f"  {q.qubit:>8} ({q.role}) excess {q.excess:+.4f} per detector over {q.items} detectors, "
                      f"z = {q.z:+.1f}")
+    lines += ["", "Rounds departing most (their detectors pooled over qubits):"]
+    for q in result.by_round[:SHOWN]:
+        lines.append(f"  {q.qubit:>8} excess {q.excess:+.4f} per detector over {q.items} detectors, z = {q.z:+.1f}")
     lines += ["", "Fault sources, each the best explanation of the edges' departure that those above leave "
               "(factor = how much worse than the model):"]
     for s in result.sources[:SHOWN]:

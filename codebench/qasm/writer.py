@@ -19,7 +19,6 @@ from __future__ import annotations
 import json
 import re
 from dataclasses import dataclass
-from typing import Any
 
 from codebench.build import ideal_circuit, noise_model
 from codebench.circuits import Layer
@@ -137,7 +136,3 @@ def _layer_statements(layer: Layer, ref: dict[int, str], register: str, measured
 def description_of(point: Point) -> Description:
     """The description alone (what lab commands compare measured files with)."""
     return export_point(point).description
-
-
-def description_json(point: Point) -> dict[str, Any]:
-    return description_of(point).to_json()
