@@ -16,6 +16,7 @@ from collections import Counter
 from pathlib import Path
 
 import pytest
+import stim
 from openqasm3 import ast, parser
 
 from codebench.build import ideal_circuit, noise_model, noisy_circuit
@@ -154,3 +155,18 @@ def test_cli_writes_program_and_description(tmp_path: Path, capsys: pytest.Captu
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "--distance" in err[0]
     assert not (tmp_path / "x.qasm").exists()
+
+
+def test_cli_exports_a_sweep_point_and_the_circuit_command_takes_a_device(
+        tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    sweep = tmp_path / "sweep.toml"
+    sweep.write_text(f'name = "x"\nseed = 1\n[[study]]\ncode = "rotated_surface"\ndistances = [3]\nrounds = 3\n'
+                     f'basis = ["Z"]\nnoise = "device"\ndevice = "{DEVICES / "larkspur_current.toml"}"\n'
+                     'decoders = ["mwpm"]\n')
+    assert main(["qasm", str(sweep), "--point", "0", "--out", str(tmp_path / "p.qasm")]) == 0
+    assert load_description(tmp_path / "p.json").point == POINTS["surface-device-Z"]
+    capsys.readouterr()
+    assert main(["circuit", "--device", str(DEVICES / "larkspur_current.toml"), "--code", "rotated_surface",
+                 "--distance", "3", "--rounds", "3"]) == 0
+    printed = stim.Circuit(capsys.readouterr().out)  # stim prints arguments rounded
+    assert printed.approx_equals(noisy_circuit(POINTS["surface-device-Z"]), atol=1e-6)
