@@ -11,6 +11,7 @@ from __future__ import annotations
 import sqlite3
 from pathlib import Path
 
+import pandas as pd
 import pytest
 
 from codebench.analysis import analyze
@@ -83,3 +84,19 @@ def test_store_without_measured_table_loads_as_simulated(folder: Path, tmp_path:
         db.execute("DROP TABLE measured")
     frame = load_results(copy)
     assert len(frame) == 2 and set(frame["source"]) == {"simulated"}
+
+
+def test_measured_points_at_two_distances_form_their_own_family(folder: Path) -> None:
+    """Lambda of the measured points alone, never mixed with the simulated ones (common practice: one fit per
+    data source); the simulated family's records read exactly as before (no ``source`` key)."""
+    frame = load_results(folder)
+    measured = frame[frame["source"] == "measured"]
+    twin = measured.assign(distance=5, key=measured["key"] + "5")
+    result = analyze(pd.concat([frame, twin], ignore_index=True), bootstrap=10)
+    sources = sorted((f.family.source, f.family.decoder) for f in result.families)
+    assert sources == [("measured", "mwpm"), ("measured", "mwpm (data weights)"), ("simulated", "mwpm")]
+    records = [*result.lambdas, *result.pseudo_thresholds, *result.lambda_pairs]
+    assert any(r.family.source == "measured" for r in records) or any("(measured)" in n for n in result.notes)
+    for estimate in result.lambdas:
+        document = estimate.to_json()
+        assert ("source" in document) == (estimate.family.source == "measured")

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Callable, Protocol, Sequence, TypeVar
 
-from codebench.analysis.families import FamilyId
+from codebench.analysis.families import DEFAULT_SOURCE, FamilyId
 from codebench.analysis.measured import MeasuredComparison
 from codebench.analysis.records import (
     FssThreshold,
@@ -60,9 +60,15 @@ def _family(extra: Sequence[Column[F]]) -> list[Column[F]]:
     """The family's columns, then ``extra``."""
     columns: list[Column[F]] = [
         ("code", lambda r: r.family.code), ("basis", lambda r: r.family.basis), ("noise", lambda r: r.family.noise),
-        ("decoder", lambda r: r.family.decoder), ("rounds", lambda r: r.family.rounds),
+        ("decoder", _decoder), ("rounds", lambda r: r.family.rounds),
     ]
     return columns + list(extra)
+
+
+def _decoder(r: F) -> str:
+    """The family's decoder, marked ``[measured]`` for a family of measured points."""
+    family = r.family
+    return family.decoder if family.source == DEFAULT_SOURCE else f"{family.decoder} [{family.source}]"
 
 
 def _nu(r: ThresholdEstimate) -> float | None:

@@ -65,7 +65,7 @@ def plans(frame: pd.DataFrame) -> list[FigurePlan[MeasuredInputs]]:
             series.append(_series(part, f"simulated, {decoder}", False))
         for decoder, part in measured.groupby("decoder", sort=True):
             series.append(_series(part, f"measured, {decoder}", True))
-        family = Family(str(code), str(basis), str(noise), str(options), "", str(rounds), group, "measured")
+        family = Family(str(code), str(basis), str(noise), str(options), "", str(rounds), group)
         title = family_title(family, with_decoder=False)
         inputs = MeasuredInputs(tuple(series), f"{title} \u00b7 {rate_meaning(str(noise)).text(p)}")
         caption = (f"Measured against simulated for {title}: per-round logical error by distance; lines and bands "
