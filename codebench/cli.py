@@ -382,7 +382,7 @@ def build_parser() -> argparse.ArgumentParser:
     qasm.set_defaults(func=cmd_qasm)
 
     lab = sub.add_parser("lab", help="measured records: decode them, see where the device departs from its model")
-    lab_verbs = lab.add_subparsers(dest="lab_verb", required=True, parser_class=_Parser)
+    lab_verbs = lab.add_subparsers(dest="lab_verb", metavar="{decode,inspect}", required=True, parser_class=_Parser)
     decode = lab_verbs.add_parser("decode", help="decode measured records into a point of a results folder "
                                                  "(source = measured)")
     _lab_options(decode)
