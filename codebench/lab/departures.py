@@ -137,8 +137,9 @@ def analyse(experiment: Experiment, dets: np.ndarray, obs: np.ndarray | None = N
                                 int(fired[k]), shots, low, high, float(predicted[k])))
     graph = model_graph(experiment.model(True), experiment.model(False))
     estimates = estimate_edges(graph, dets)
-    names = {q: description.qubits[n].name
-             for n, q in enumerate(sorted(experiment.circuit.get_final_qubit_coordinates()))}
+    # Qubit i of the description is the i-th qubit of the circuit (codebench numbers them in that order).
+    by_index = {q.index: q.name for q in description.qubits}
+    names = {q: by_index[n] for n, q in enumerate(sorted(experiment.circuit.get_final_qubit_coordinates()))}
     edges = [EdgeRow(i, None if j == BOUNDARY else j, float(p_model), float(p_expected), float(p_data), float(err))
              for (i, j), p_model, p_expected, p_data, err in zip(graph.edges, graph.probabilities, graph.expected,
                                                                  estimates.probabilities, estimates.errors)]

@@ -10,7 +10,7 @@ detector's bits, relative to the noiseless reference (all zero for codebench exp
 from __future__ import annotations
 
 import dataclasses
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import cached_property
 
 import numpy as np
@@ -31,6 +31,7 @@ MIN_SHOTS = 20
 class Experiment:
     point: Point
     description: Description
+    _models: dict[bool, stim.DetectorErrorModel] = field(default_factory=dict, repr=False, compare=False)
 
     @cached_property
     def circuit(self) -> stim.Circuit:
@@ -38,7 +39,10 @@ class Experiment:
         return noisy_circuit(self.point)
 
     def model(self, decomposed: bool) -> stim.DetectorErrorModel:
-        return self.circuit.detector_error_model(decompose_errors=decomposed)
+        """The model's detector error model (decomposed into graphlike parts or not), derived once."""
+        if decomposed not in self._models:
+            self._models[decomposed] = self.circuit.detector_error_model(decompose_errors=decomposed)
+        return self._models[decomposed]
 
     @property
     def bits(self) -> int:
