@@ -18,9 +18,10 @@ import matplotlib
 import numpy as np
 from matplotlib.colors import LogNorm, TwoSlopeNorm
 from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
 
 from codebench.figures.canvas import FigureFile, new_figure, save, titles
-from codebench.figures.style import INK, MUTED, STYLE
+from codebench.figures.style import INK, STYLE
 from codebench.lab.departures import Departures
 from codebench.lab.graph import BOUNDARY
 
@@ -98,17 +99,20 @@ def qubit_map(result: Departures) -> Figure:
     top = max(sizes) or 1.0
     ax.scatter(xs, ys, s=[420 + 900 * s / top for s in sizes], facecolors="none", edgecolors=MEASURED,
                linewidths=1.4, zorder=1)
-    for q in description.qubits:
-        ax.annotate(q.name, (q.coords[0], q.coords[1]), ha="center", va="center", fontsize=8, color=INK, zorder=3)
+    for q, value in zip(description.qubits, values):
+        dark = bool(np.isfinite(value)) and abs(value) > 0.6 * scale
+        ax.annotate(q.name, (q.coords[0], q.coords[1]), ha="center", va="center", fontsize=8,
+                    color="white" if dark else INK, zorder=3)
     fig.colorbar(shades, ax=ax, label="excess detection fraction (measured - model)")
     ax.set_xlabel("x (code coordinate)")
     ax.set_ylabel("y (code coordinate)")
     ax.set_aspect("equal")
     ax.margins(0.15)
     ax.grid(False)
-    ax.annotate("grey: no detector of its own (data qubit); orange ring: the larger, the more its worst fault "
-                "source departs",
-                xy=(0, -0.16), xycoords="axes fraction", fontsize=8.5, color=MUTED)
+    keys = [Line2D([], [], ls="", marker="o", ms=11, mfc="#d8d8d8", mec=INK, label="no detector of its own"),
+            Line2D([], [], ls="", marker="o", ms=15, mfc="none", mec=MEASURED, mew=1.4,
+                   label="ring: its worst fault source (larger: departs more)")]
+    ax.legend(handles=keys, loc="upper center", bbox_to_anchor=(0.5, -0.14), ncol=1, fontsize=9, frameon=False)
     titles(ax, "Where the device departs from its model", _subline(result))
     return fig
 
