@@ -24,6 +24,7 @@ from pathlib import Path
 import numpy as np
 import pymatching
 import pytest
+import stim
 
 from codebench.build import noisy_circuit
 from codebench.cli import main
@@ -175,3 +176,20 @@ def test_malformed_input_is_one_line_and_exit_2(tmp_path: Path, capsys: pytest.C
     err = [line for line in capsys.readouterr().err.splitlines() if line.strip()]
     assert len(err) == 1, err
     assert not out.exists()
+
+
+def test_inspect_writes_tables_model_and_figures(tmp_path: Path, perturbed: tuple[np.ndarray, Departures],
+                                                 capsys: pytest.CaptureFixture[str]) -> None:
+    records, _ = perturbed
+    (tmp_path / "exp.json").write_text(export_point(model_point()).description_text())
+    write_records(tmp_path / "shots.b8", records[:4000])
+    out = tmp_path / "inspect"
+    assert main(["lab", "inspect", str(tmp_path / "shots.b8"), "--description", str(tmp_path / "exp.json"),
+                 "--out", str(out)]) == 0
+    names = {p.name for p in out.iterdir()}
+    assert {"detectors.csv", "sources.csv", "edges.csv", "pairs.csv", "reweighted.dem", "summary.txt"} <= names
+    assert {f"{stem}.{ext}" for stem in ("detection_fractions", "qubit_map", "pair_matrix") for ext in ("png", "svg")} \
+        <= names
+    reweighted = stim.DetectorErrorModel((out / "reweighted.dem").read_text())
+    assert reweighted.num_detectors == 24 and reweighted.num_observables == 1
+    assert "Fault sources" in capsys.readouterr().out
