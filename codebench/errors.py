@@ -7,6 +7,7 @@
     ├── DeviceFileError       a device calibration file is not allowed
     ├── DecoderError          a decoder cannot be built or run for a point
     ├── StoreError            a results store is unusable (foreign, corrupt, locked)
+    ├── DataError             measured records or an experiment description do not fit
     └── ClusterError          a cluster run could not go on (scheduler lost, workers keep dying)
 
 The command line prints the message of every ``CodebenchError`` on one line,
@@ -41,6 +42,10 @@ class DecoderError(CodebenchError):
 
 class StoreError(CodebenchError):
     """A results store cannot be used."""
+
+
+class DataError(CodebenchError):
+    """Measured records, an experiment description or an OpenQASM program are malformed or do not fit."""
 
 
 class RunFault(CodebenchError):

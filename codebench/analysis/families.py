@@ -16,6 +16,19 @@ import numpy as np
 import pandas as pd
 
 IDENTITY = ("code", "basis", "noise", "noise_options", "decoder")
+#: The ``source`` of rows from stores and CSVs written before measured points existed.
+DEFAULT_SOURCE = "simulated"
+
+
+def with_source(frame: pd.DataFrame) -> pd.DataFrame:
+    """``frame`` with its ``source`` column (``simulated`` where it is missing or empty).
+
+    >>> list(with_source(pd.DataFrame({"p": [0.1]}))["source"])
+    ['simulated']
+    """
+    if "source" not in frame.columns:
+        return frame.assign(source=DEFAULT_SOURCE)
+    return frame.assign(source=frame["source"].fillna(DEFAULT_SOURCE).astype(str))
 
 
 @dataclass(frozen=True)
@@ -23,7 +36,10 @@ class FamilyId:
     """Who a result record belongs to: the family's code, basis, noise model, decoder and rounds rule.
 
     ``noise_options`` (the options' canonical JSON) tells apart families that differ only there; it is not
-    part of a record's JSON, which starts with the five other keys (:meth:`to_json`).
+    part of a record's JSON, which starts with the five other keys (:meth:`to_json`). ``source`` is
+    ``measured`` for a family of points decoded from measured records (``codebench lab decode``); only
+    then does the JSON carry it (``"source": "measured"`` after the five keys), so simulated records read
+    as before.
     """
 
     code: str
@@ -32,14 +48,19 @@ class FamilyId:
     decoder: str
     rounds: str
     noise_options: str = "{}"
+    source: str = DEFAULT_SOURCE
 
     def to_json(self) -> dict[str, Any]:
         """The keys every JSON record of the family starts with (as :meth:`Family.identity`)."""
-        return {"code": self.code, "basis": self.basis, "noise": self.noise, "decoder": self.decoder,
-                "rounds": self.rounds}
+        out = {"code": self.code, "basis": self.basis, "noise": self.noise, "decoder": self.decoder,
+               "rounds": self.rounds}
+        if self.source != DEFAULT_SOURCE:
+            out["source"] = self.source
+        return out
 
     def describe(self) -> str:
-        return f"{self.code} {self.basis} {self.noise} {self.decoder} rounds={self.rounds}"
+        text = f"{self.code} {self.basis} {self.noise} {self.decoder} rounds={self.rounds}"
+        return text if self.source == DEFAULT_SOURCE else f"{text} ({self.source})"
 
 
 @dataclass(frozen=True)
@@ -53,6 +74,7 @@ class Family:
     decoder: str
     rounds_rule: str
     frame: pd.DataFrame
+    source: str = DEFAULT_SOURCE
 
     @property
     def distances(self) -> list[int]:
@@ -66,7 +88,8 @@ class Family:
     @property
     def id(self) -> FamilyId:
         """The family's identity, as its result records carry it."""
-        return FamilyId(self.code, self.basis, self.noise, self.decoder, self.rounds_rule, self.noise_options)
+        return FamilyId(self.code, self.basis, self.noise, self.decoder, self.rounds_rule, self.noise_options,
+                        self.source)
 
     def identity(self) -> dict[str, Any]:
         """The keys every result record of this family starts with."""
@@ -89,21 +112,24 @@ def _usable(frame: pd.DataFrame) -> pd.DataFrame:
 
 def group_families(frame: pd.DataFrame) -> list[Family]:
     """Every family with at least two distances, in a stable order."""
-    frame = _usable(frame)
+    frame = with_source(_usable(frame))
     if "noise_options" not in frame.columns:
         frame = frame.assign(noise_options="{}")
     families: list[Family] = []
-    for ident, group in frame.groupby(list(IDENTITY), sort=True):
-        code, basis, noise, options, decoder = (str(x) for x in ident)
-        ratio = group["rounds"] / group["distance"]
-        for k in sorted({int(r) for r in ratio if float(r).is_integer()}):
-            part = group[ratio == k]
-            if part["distance"].nunique() >= 2:
-                rule = "d" if k == 1 else f"{k}d"
-                families.append(Family(code, basis, noise, options, decoder, rule, _sorted(part)))
-        for rounds, part in group.groupby("rounds", sort=True):
-            if part["distance"].nunique() >= 2:
-                families.append(Family(code, basis, noise, options, decoder, str(rounds), _sorted(part)))
+    # Simulated families first, in the order they always had; measured ones after them.
+    for source in sorted(frame["source"].unique(), key=lambda s: (s != DEFAULT_SOURCE, s)):
+        for ident, group in frame[frame["source"] == source].groupby(list(IDENTITY), sort=True):
+            code, basis, noise, options, decoder = (str(x) for x in ident)
+            ratio = group["rounds"] / group["distance"]
+            for k in sorted({int(r) for r in ratio if float(r).is_integer()}):
+                part = group[ratio == k]
+                if part["distance"].nunique() >= 2:
+                    rule = "d" if k == 1 else f"{k}d"
+                    families.append(Family(code, basis, noise, options, decoder, rule, _sorted(part), source))
+            for rounds, part in group.groupby("rounds", sort=True):
+                if part["distance"].nunique() >= 2:
+                    families.append(Family(code, basis, noise, options, decoder, str(rounds), _sorted(part),
+                                           source))
     return families
 
 

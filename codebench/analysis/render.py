@@ -4,7 +4,8 @@ from __future__ import annotations
 
 from typing import Callable, Protocol, Sequence, TypeVar
 
-from codebench.analysis.families import FamilyId
+from codebench.analysis.families import DEFAULT_SOURCE, FamilyId
+from codebench.analysis.measured import MeasuredComparison
 from codebench.analysis.records import (
     FssThreshold,
     LambdaEstimate,
@@ -59,9 +60,15 @@ def _family(extra: Sequence[Column[F]]) -> list[Column[F]]:
     """The family's columns, then ``extra``."""
     columns: list[Column[F]] = [
         ("code", lambda r: r.family.code), ("basis", lambda r: r.family.basis), ("noise", lambda r: r.family.noise),
-        ("decoder", lambda r: r.family.decoder), ("rounds", lambda r: r.family.rounds),
+        ("decoder", _decoder), ("rounds", lambda r: r.family.rounds),
     ]
     return columns + list(extra)
+
+
+def _decoder(r: F) -> str:
+    """The family's decoder, marked ``[measured]`` for a family of measured points."""
+    family = r.family
+    return family.decoder if family.source == DEFAULT_SOURCE else f"{family.decoder} [{family.source}]"
 
 
 def _nu(r: ThresholdEstimate) -> float | None:
@@ -110,6 +117,17 @@ def analysis_table(result: AnalysisResult) -> str:
         _table("Projections (from the Lambda fit; extrapolated beyond the fitted distances where marked)",
                result.projections, projections),
     ]
+    if result.measured:
+        measured: list[Column[MeasuredComparison]] = [
+            ("study", lambda r: r.study), ("code", lambda r: r.code), ("d", lambda r: r.distance),
+            ("rounds", lambda r: r.rounds), ("basis", lambda r: r.basis), ("noise", lambda r: r.noise),
+            ("p", lambda r: r.p), ("decoder", lambda r: r.decoder), ("shots", lambda r: r.shots),
+            ("measured/round", lambda r: r.per_round), ("95% low", lambda r: r.per_round_low),
+            ("95% high", lambda r: r.per_round_high), ("simulated/round", lambda r: r.simulated_per_round),
+            ("95% low", lambda r: r.simulated_low), ("95% high", lambda r: r.simulated_high),
+            ("measured/simulated", lambda r: r.ratio)]
+        sections.append(_table("Measured beside simulated (per-round logical error; source = measured)",
+                               result.measured, measured))
     if result.notes:
         sections.append("Notes\n=====\n" + "\n".join(f"- {n}" for n in result.notes))
     return "\n\n".join(sections)

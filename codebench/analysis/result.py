@@ -22,6 +22,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from codebench.analysis.families import FamilyId
+from codebench.analysis.measured import MeasuredComparison
 from codebench.analysis.records import (
     CrossingThreshold,
     LambdaEstimate,
@@ -83,6 +84,8 @@ class AnalysisResult:
     families: tuple[FamilyAnalysis, ...]
     settings: AnalysisSettings
     general_notes: tuple[str, ...] = ()
+    #: Measured points beside their simulated twins (``codebench lab decode``); in the JSON only when any.
+    measured: tuple[MeasuredComparison, ...] = ()
 
     @property
     def thresholds(self) -> tuple[ThresholdEstimate, ...]:
@@ -133,7 +136,7 @@ class AnalysisResult:
             "notes": list(self.notes),
             "settings": self.settings.to_json(),
             "per_round_crossings": [r.to_json() for r in self.per_round_crossings],
-        }
+        } | ({"measured": [r.to_json() for r in self.measured]} if self.measured else {})
 
 
 __all__ = ["CONFIDENCE", "AnalysisResult", "AnalysisSettings", "FamilyAnalysis"]

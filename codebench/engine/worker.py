@@ -83,18 +83,24 @@ def compile_point(params: dict[str, Any], model: bytes | None = None) -> Compile
     point = Point.from_params(params)
     circuit = circuit_of(params)
     decoder_cls = get_decoder(point.decoder)
-    decoder = decoder_cls(**dict(point.decoder_options))
     dem = unpack_model(model) if model is not None else model_of(params, decoder_cls.wants_decomposed)
+    decoder = compiled_decoder(point, dem)
+    entry = CompiledPoint(circuit, decoder, circuit.num_detectors, circuit.num_observables, dem, point.decoder)
+    if is_spec(point.decoder):
+        check_deterministic(entry)
+    return entry
+
+
+def compiled_decoder(point: Point, dem: stim.DetectorErrorModel) -> Decoder:
+    """The point's decoder compiled for ``dem``; whatever fails in its ``compile`` is a DecoderError naming it."""
+    decoder = get_decoder(point.decoder)(**dict(point.decoder_options))
     try:
         decoder.compile(dem)
     except DecoderError:
         raise
     except Exception as exc:
         raise DecoderError(f"decoder {point.decoder!r} failed in compile: {type(exc).__name__}: {exc}") from exc
-    entry = CompiledPoint(circuit, decoder, circuit.num_detectors, circuit.num_observables, dem, point.decoder)
-    if is_spec(point.decoder):
-        check_deterministic(entry)
-    return entry
+    return decoder
 
 
 #: Shots of the batch a plug-in decoder must decode twice alike before its point runs.

@@ -10,7 +10,7 @@ from typing import Any, Iterable, Sequence
 
 import numpy as np
 
-from codebench.analysis.families import Family
+from codebench.analysis.families import DEFAULT_SOURCE, Family
 from codebench.figures.style import finite
 
 #: The record lists of an analysis.
@@ -58,6 +58,9 @@ def plain_analysis(analysis: Any) -> dict[str, Any]:
     for key in SECTIONS:
         out[key] = [_plain_record(record) for record in part(key) or []]
     out["notes"] = [str(note) for note in part("notes") or []]
+    measured = part("measured")
+    if measured:
+        out["measured"] = [_plain(record) for record in measured]
     settings = _plain(part("settings"))
     out["settings"] = settings if isinstance(settings, dict) else {}
     return out
@@ -67,6 +70,8 @@ def _matches(record: dict[str, Any], family: Family) -> bool:
     """Whether an analysis record belongs to ``family`` (identity, and noise options if recorded)."""
     identity = family.identity()
     if any(str(record.get(key)) != str(value) for key, value in identity.items()):
+        return False
+    if str(record.get("source", DEFAULT_SOURCE)) != family.source:
         return False
     options = record.get("noise_options")
     return options is None or str(options) == family.noise_options

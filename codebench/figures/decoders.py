@@ -36,7 +36,7 @@ def groups(families: Sequence[Family]) -> list[list[Family]]:
     """Families that differ only in their decoder, where there are at least two decoders."""
     found: dict[tuple[str, ...], list[Family]] = {}
     for family in families:
-        key = (family.code, family.basis, family.noise, family.noise_options, family.rounds_rule)
+        key = (family.code, family.basis, family.noise, family.noise_options, family.rounds_rule, family.source)
         found.setdefault(key, []).append(family)
     return [group for _, group in sorted(found.items()) if len({f.decoder for f in group}) >= 2]
 

@@ -14,7 +14,7 @@ from __future__ import annotations
 import json
 import re
 
-from codebench.analysis.families import Family
+from codebench.analysis.families import DEFAULT_SOURCE, Family
 from codebench.noise import NOISE_MODELS
 from codebench.noise.base import PHYSICAL_RATE, NoiseModel, RateMeaning
 
@@ -99,6 +99,8 @@ def family_slug(family: Family, with_decoder: bool = True) -> str:
     if with_decoder:
         parts.append(family.decoder)
     parts.append(f"r{family.rounds_rule}")
+    if family.source != DEFAULT_SOURCE:
+        parts.append(family.source)
     return safe("_".join(parts))
 
 
@@ -115,6 +117,8 @@ def family_title(family: Family, with_decoder: bool = True) -> str:
     if with_decoder:
         parts.append(family.decoder)
     parts.append(f"rounds {family.rounds_rule}")
+    if family.source != DEFAULT_SOURCE:
+        parts.append(family.source)
     return SEPARATOR.join(parts)
 
 

@@ -121,6 +121,18 @@ class NoiseModel(ABC):
         """Physical duration of one syndrome round of ``ideal`` (``None``: the model has no clock)."""
         return None
 
+    def layer_duration_ns(self, layer: Layer) -> float | None:
+        """How long ``layer`` takes on the hardware (``None``: the model has no clock)."""
+        return None
+
+    def qubit_names(self, ideal: IdealCircuit) -> dict[int, str] | None:
+        """Hardware names of the circuit's qubits (code qubit -> name), or ``None`` when the model has none.
+
+        Exports (OpenQASM, the description file) and the lab analysis name qubits through this one hook;
+        a device names them from its ``[[layouts]]`` entry for the code and distance.
+        """
+        return None
+
 
 def idle_qubits(layer: Layer, ideal: IdealCircuit) -> list[int]:
     """Qubits of the circuit that ``layer`` does not act on."""

@@ -351,6 +351,13 @@ class DeviceNoise(NoiseModel):
                        for op in layer.ops for a, b in zip(op.targets[::2], op.targets[1::2]))
         return self.device.durations_ns[_DURATION_OF[layer.kind]]
 
+    def qubit_names(self, ideal: IdealCircuit) -> dict[int, str] | None:
+        """Device qubit of each code qubit, from the file's ``[[layouts]]`` entry (``None`` without one)."""
+        mapping = self._device_qubits(ideal)
+        if any(name is None for name in mapping.values()):
+            return None
+        return {q: str(name) for q, name in mapping.items()}
+
     def layer_noise(self, layer: Layer, ideal: IdealCircuit) -> tuple[list[NoiseOp], list[NoiseOp]]:
         dev = self.device
         duration = self.layer_duration_ns(layer)

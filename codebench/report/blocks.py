@@ -111,5 +111,6 @@ def list_text(values: Any) -> str:
 
 def family_text(record: dict[str, Any]) -> str:
     """The family a record belongs to, in one line."""
-    return (f"{record.get('code')} {record.get('basis')} {record.get('noise')} {record.get('decoder')} "
+    text = (f"{record.get('code')} {record.get('basis')} {record.get('noise')} {record.get('decoder')} "
             f"r={record.get('rounds')}")
+    return f"{text} ({record['source']})" if record.get("source") else text

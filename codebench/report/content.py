@@ -238,7 +238,28 @@ def fit_tables(analysis: dict[str, Any]) -> list[Table]:
                                  list_text(r.get("fitted_distances")), flag])
         projections.row_classes.append("extrapolated" if r.get("extrapolation") else "")
     tables.append(projections)
+    if records("measured"):
+        tables.append(measured_table(records("measured")))
     return tables
+
+
+def measured_table(records: list[dict[str, Any]]) -> Table:
+    """Measured points (``codebench lab decode``) beside their simulated twins."""
+    table = Table(
+        "measured", "Measured beside simulated",
+        "Points decoded from records measured on the device (source = measured), each beside the simulated "
+        "point of the same experiment: per-round logical error with 95% intervals, and their ratio. A decoder "
+        "marked (data weights) decoded with weights learned from the other half of the shots.",
+        ["study", "code", "d", "rounds", "noise", "p", "decoder", "shots", "measured / round [95%]",
+         "simulated / round [95%]", "measured / simulated"], numeric={2, 3, 5, 7, 8, 9, 10}, empty="none")
+    for r in records:
+        table.rows.append([
+            str(r.get("study", "")), str(r.get("code", "")), integer(r.get("distance")), integer(r.get("rounds")),
+            str(r.get("noise", "")), g(r.get("p")), str(r.get("decoder", "")), integer(r.get("shots")),
+            with_interval(r.get("measured"), r.get("measured_low"), r.get("measured_high"), e),
+            with_interval(r.get("simulated"), r.get("simulated_low"), r.get("simulated_high"), e)
+            if r.get("simulated") is not None else DASH, g(r.get("ratio"), 3)])
+    return table
 
 
 def _quantity(value: Any) -> str:

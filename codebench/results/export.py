@@ -10,8 +10,8 @@ import pandas as pd
 
 from codebench.files import write_atomically
 from codebench.noise import NOISE_MODELS
-from codebench.records import BatchSchedule
-from codebench.results.store import Store
+from codebench.records import BatchSchedule, Point
+from codebench.results.store import MeasuredResult, Store
 from codebench.results.tally import tally, usable_batches
 from codebench.stats import binomial_interval, per_round
 
@@ -23,8 +23,12 @@ COLUMNS = [
 ]
 EXTRA_COLUMNS = [
     "decode_seconds", "decode_us_per_round", "batches", "complete", "interval", "noise_options", "decoder_options",
-    "key",
+    "key", "source",
 ]
+#: Values of the ``source`` column: sampled by codebench, or decoded from records measured on a device.
+SOURCES = ("simulated", "measured")
+#: Added to the decoder column of a measured point decoded with weights learned from its data.
+DATA_WEIGHTS = " (data weights)"
 
 
 def _options_column(noise: str, options: dict[str, str]) -> str:
@@ -59,7 +63,7 @@ def _per_round(total: float, rounds: int) -> float:
 
 
 def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
-    """The results table of the store's latest run.
+    """The results table of the store's latest run, then its measured points (column ``source``).
 
     ``failure_rate`` is failures / shots with a 95% interval by ``interval``
     (``wilson``, ``jeffreys`` or ``clopper_pearson``; named in the
@@ -70,31 +74,67 @@ def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
     shot per round in microseconds: the decoder's wall time on one worker,
     to compare with the duration of a syndrome round.
     """
+    measured = store.measured()
+    rows = _simulated_rows(store, interval) if store.has_sweep() or not measured else []
+    rows.extend(_measured_row(result, interval) for result in measured)
+    return pd.DataFrame(rows, columns=COLUMNS + EXTRA_COLUMNS)
+
+
+def _rates(point: Point, failures: int, shots: int, interval: str) -> dict[str, float]:
+    """The failure rate and per-round rate of a point, with their 95% intervals."""
+    rate = failures / shots if shots else float("nan")
+    low, high = binomial_interval(failures, shots, interval) if shots else (float("nan"), float("nan"))
+    return {"failure_rate": rate, "failure_rate_low": low, "failure_rate_high": high,
+            "per_round_rate": _per_round(rate, point.rounds), "per_round_low": _per_round(low, point.rounds),
+            "per_round_high": _per_round(high, point.rounds)}
+
+
+def _identity_columns(study: str, point: Point) -> dict[str, object]:
+    return {"study": study, "code": point.code, "distance": point.distance, "rounds": point.rounds,
+            "basis": point.basis, "noise": point.noise, "p": point.p, "decoder": point.decoder}
+
+
+def _simulated_rows(store: Store, interval: str) -> list[dict[str, object]]:
     stopping = store.stopping()
     stored = store.all_batches()
-    rows = []
+    rows: list[dict[str, object]] = []
     for member, study in store.members():
         point = member.point
         sizes = BatchSchedule(stopping.shot_budget, member.batch_cap)
         t = tally(sizes, usable_batches(sizes, stored.get(member.key, [])), stopping)
-        rate = t.failures / t.shots if t.shots else float("nan")
-        low, high = binomial_interval(t.failures, t.shots, interval) if t.shots else (float("nan"), float("nan"))
         rows.append({
-            "study": study, "code": point.code, "distance": point.distance, "rounds": point.rounds,
-            "basis": point.basis, "noise": point.noise, "p": point.p, "decoder": point.decoder,
+            **_identity_columns(study, point),
             "shots": t.shots, "failures": t.failures, "seconds": t.seconds,
-            "failure_rate": rate, "failure_rate_low": low, "failure_rate_high": high,
-            "per_round_rate": _per_round(rate, point.rounds), "per_round_low": _per_round(low, point.rounds),
-            "per_round_high": _per_round(high, point.rounds),
+            **_rates(point, t.failures, t.shots, interval),
             "qubits": member.qubits, "detectors": member.detectors,
             "decode_seconds": t.decode_seconds,
             "decode_us_per_round": decode_us_per_round(t.decode_seconds, t.shots, point.rounds),
             "batches": t.batches, "complete": t.finished, "interval": interval,
             "noise_options": _options_column(point.noise, dict(point.noise_options)),
             "decoder_options": json.dumps(dict(point.decoder_options), sort_keys=True),
-            "key": member.key,
+            "key": member.key, "source": "simulated",
         })
-    return pd.DataFrame(rows, columns=COLUMNS + EXTRA_COLUMNS)
+    return rows
+
+
+def _measured_row(result: MeasuredResult, interval: str) -> dict[str, object]:
+    """A measured point's row: its decoder column says which weights decoded it (``mwpm (data weights)``)."""
+    point = result.point
+    row = {
+        **_identity_columns(result.study, point),
+        "shots": result.shots, "failures": result.failures, "seconds": 0.0,
+        **_rates(point, result.failures, result.shots, interval),
+        "qubits": result.qubits, "detectors": result.detectors,
+        "decode_seconds": result.decode_seconds,
+        "decode_us_per_round": decode_us_per_round(result.decode_seconds, result.shots, point.rounds),
+        "batches": 0, "complete": True, "interval": interval,
+        "noise_options": _options_column(point.noise, dict(point.noise_options)),
+        "decoder_options": json.dumps(dict(point.decoder_options), sort_keys=True),
+        "key": result.key, "source": "measured",
+    }
+    if result.weights == "data":
+        row["decoder"] = f"{point.decoder}{DATA_WEIGHTS}"
+    return row
 
 
 def write_csv(frame: pd.DataFrame, path: str | Path) -> Path:

@@ -51,6 +51,18 @@ CREATE TABLE IF NOT EXISTS batches (
     decode_seconds REAL NOT NULL,
     PRIMARY KEY (key, batch_index, shots)
 );
+CREATE TABLE IF NOT EXISTS measured (
+    key TEXT PRIMARY KEY,
+    params TEXT NOT NULL,
+    study TEXT NOT NULL,
+    weights TEXT NOT NULL,
+    shots INTEGER NOT NULL,
+    failures INTEGER NOT NULL,
+    qubits INTEGER NOT NULL,
+    detectors INTEGER NOT NULL,
+    decode_seconds REAL NOT NULL,
+    records TEXT NOT NULL
+);
 """
 
 
@@ -63,6 +75,26 @@ class StoredPoint:
     qubits: int
     detectors: int
     batch_cap: int
+
+
+@dataclass(frozen=True)
+class MeasuredResult:
+    """A point decoded from measured records (``codebench lab decode``): counts of its own, no batches.
+
+    ``weights`` is ``model`` (the decoder's weights from the point's noise model) or ``data`` (weights
+    estimated from the records themselves, decoded on held-out shots); ``records`` names the file.
+    """
+
+    key: str
+    point: Point
+    study: str
+    weights: str
+    shots: int
+    failures: int
+    qubits: int
+    detectors: int
+    decode_seconds: float
+    records: str
 
 
 class Store:
@@ -206,7 +238,33 @@ class Store:
         return OutputError(f"cannot write the results store '{self.path}': {exc}; {held}: free some space and "
                            "rerun the same command to resume.")
 
+    def add_measured(self, result: MeasuredResult) -> None:
+        """Record (or replace) the counts of one measured point, in one transaction."""
+        with self._transaction():
+            self._db.execute(
+                "INSERT OR REPLACE INTO measured VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                (result.key, json.dumps(result.point.params(), sort_keys=True), result.study, result.weights,
+                 result.shots, result.failures, result.qubits, result.detectors, result.decode_seconds,
+                 result.records),
+            )
+
     # reading -------------------------------------------------------------
+
+    def has_sweep(self) -> bool:
+        """Whether a sweep has been set up in this store (measured points alone need none)."""
+        return "stopping" in self.meta()
+
+    def measured(self) -> list[MeasuredResult]:
+        """The measured points, in the order they were first recorded (none in a store written before them)."""
+        known = self._db.execute("SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'measured'").fetchone()
+        if known is None:
+            return []
+        rows = self._db.execute(
+            "SELECT key, params, study, weights, shots, failures, qubits, detectors, decode_seconds, records "
+            "FROM measured ORDER BY rowid").fetchall()
+        return [MeasuredResult(key, Point.from_params(json.loads(params), study), study, weights, shots, failures,
+                               qubits, detectors, seconds, records)
+                for key, params, study, weights, shots, failures, qubits, detectors, seconds, records in rows]
 
     def meta(self) -> dict[str, str]:
         return dict(self._db.execute("SELECT key, value FROM meta").fetchall())
