@@ -30,13 +30,10 @@ def entry() -> NoReturn:
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         status = EXIT_BROKEN_PIPE
     # The interpreter's own shutdown (joining pool threads, stopping the fork server) can take a moment
-    # on a busy machine; a further Ctrl-C then must not end in a traceback: leave at once instead.
-    signal.signal(signal.SIGINT, _leave_now)
+    # on a busy machine. Python hands SIGINT back to the system's default (death by signal, no message)
+    # early in that shutdown unless it is ignored: ignore it, the answer is already given.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
     sys.exit(status)
-
-
-def _leave_now(signum: int, frame: object) -> None:
-    os._exit(EXIT_INTERRUPTED)
 
 
 if __name__ == "__main__":
