@@ -239,7 +239,9 @@ def test_a_worker_crashed_by_a_decoder_is_one_line_and_the_rerun_resumes(
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and "Traceback" not in done.stderr, done.stderr
     assert "worker process died" in lines[0] and "rotated_surface d=3" in lines[0] and "rerun" in lines[0]
-    assert stored_batches(out) >= 2  # batches 0 and 1 finished before the crash
+    # The crashing 4,096-shot batch is submitted only once a batch has come back (and been stored); with
+    # two workers batch 1 may still be running when the pool breaks, so one stored batch is what is sure.
+    assert stored_batches(out) >= 1
     resumed = cli_with_plugins("sweep", sweep, "--out", out, "--workers", workers, "--quiet")
     assert resumed.returncode == 0, resumed.stderr
     reference = cli_with_plugins("sweep", sweep, "--out", tmp_path / "reference", "--workers", workers, "--quiet")
