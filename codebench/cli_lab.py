@@ -8,7 +8,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from codebench.cli_args import Parser, point_options
-from codebench.errors import EXIT_OK, ConfigError, not_allowed
+from codebench.errors import EXIT_OK, ConfigError, DataError, not_allowed
 
 if TYPE_CHECKING:
     import numpy as np
@@ -51,14 +51,40 @@ def _lab_experiment(args: argparse.Namespace) -> tuple[Experiment, np.ndarray, n
 
     description = load_description(args.description) if args.description else None
     named = args.config is not None or args.code is not None or args.device is not None
+    loose = [f"--{key}" for key in ("point", "distance", "rounds", "noise", "p") if getattr(args, key) is not None]
+    if loose and not named:
+        raise ConfigError(f"{', '.join(loose)} name a point only with --code, --device or a sweep file; with "
+                          "--description alone the description names the point: drop them.")
     point = point_from_args(args) if named else None
     experiment = experiment_of(point, description, f"description '{args.description}'")
     experiment.point = with_decoder(experiment.point, args.decoder)
     records = read_records(args.records, experiment.bits, args.format)
     dets, obs = experiment.events(records)
+    refuse_unrelated_records(dets, experiment.point.label())
     print(f"codebench lab: {len(records):,} shots of {experiment.bits} bits read from {args.records} "
           f"({experiment.point.label()}); decoding ...", file=sys.stderr)
     return experiment, dets, obs
+
+
+#: A detector firing in this fraction of shots or more cannot belong to the described experiment: noise that
+#: randomises a detector leaves nothing to decode (records of another experiment give about 1/2).
+UNRELATED_FRACTION = 0.45
+
+
+def refuse_unrelated_records(detection_events: np.ndarray, label: str) -> None:
+    """Refuse records whose detectors fire at random (``detection_events``: bool, one row per shot).
+
+    Records of another experiment with the same number of bits (another basis, another point) make the
+    detectors that compare its bits fire in about half of the shots.
+    """
+    if not detection_events.size:
+        return
+    per_detector = detection_events.mean(axis=0)
+    random = [int(k) for k in (per_detector >= UNRELATED_FRACTION).nonzero()[0]]
+    if random:
+        raise DataError(f"the records do not fit {label}: {len(random)} of its {len(per_detector)} detectors "
+                        f"(first: {random[0]}) fire in {per_detector[random[0]]:.0%} of the shots, as random bits "
+                        "do; are they records of another experiment, or is the description of another circuit?")
 
 
 def cmd_lab_decode(args: argparse.Namespace) -> int:

@@ -155,6 +155,18 @@ def _malformed(tmp_path: Path, case: str) -> list[str]:
                 str(path), "--description", str(description)]
     elif case == "too few shots":
         path = write_records(tmp_path / "shots.b8", records[:5])
+    elif case == "random records of the right width":
+        # Another experiment's records with the same bit count: the detectors fire at random (about 1/2).
+        noise = np.random.default_rng(5).random((400, bits)) < 0.5
+        path = write_records(tmp_path / "shots.b8", noise)
+    elif case == "point options beside a description":
+        path = write_records(tmp_path / "shots.b8", records)
+        return [str(path), "--description", str(description), "--distance", "5"]
+    elif case == "unknown decoder in the description":
+        path = write_records(tmp_path / "shots.b8", records)
+        changed = exported.description.to_json()
+        changed["point"]["decoder"] = "nosuch"
+        description.write_text(json.dumps(changed))
     elif case == "not JSON":
         path = write_records(tmp_path / "shots.b8", records)
         description.write_text("{")
@@ -167,7 +179,8 @@ def _malformed(tmp_path: Path, case: str) -> list[str]:
 @pytest.mark.parametrize("verb", ["decode", "inspect"])
 @pytest.mark.parametrize("case", ["wrong number of bits", "records of another experiment", "truncated b8",
                                   "description of another circuit", "description against the point", "not JSON",
-                                  "bad r8", "too few shots"])
+                                  "bad r8", "too few shots", "random records of the right width",
+                                  "point options beside a description", "unknown decoder in the description"])
 def test_malformed_input_is_one_line_and_exit_2(tmp_path: Path, capsys: pytest.CaptureFixture[str], case: str,
                                                verb: str) -> None:
     arguments = _malformed(tmp_path, case)

@@ -238,6 +238,33 @@ def test_a_hand_written_layout_is_checked_against_dead_qubits_and_couplers() -> 
         noisy_circuit(point(broken))
 
 
+def test_an_explicit_placement_is_checked_by_every_command(tmp_path: Path,
+                                                            capsys: pytest.CaptureFixture[str]) -> None:
+    """The OpenQASM export, the placements command and a forecast refuse a placement that uses a dead qubit
+    or the wrong number of qubits, in one line and before writing anything (as the circuit build does)."""
+    import json
+
+    from codebench.cli import main
+
+    data = grid_device(7, 7)
+    qubits = model_of(data).placement("rotated_surface", 3)
+    assert qubits is not None
+    broken = tmp_path / "broken.json"
+    broken.write_text(json.dumps(dict(data, placement=list(qubits), qubits=[{"id": qubits[4], "usable": False}])))
+    short = tmp_path / "short.json"
+    short.write_text(json.dumps(dict(data, placement=list(qubits[:3]))))
+    runs = [["qasm", "--device", str(broken), "--code", "rotated_surface", "--distance", "3", "--rounds", "3",
+             "--out", str(tmp_path / "out" / "e.qasm")],
+            ["placements", str(broken), "--distance", "3", "--out", str(tmp_path / "out")],
+            ["placements", str(short), "--distance", "3", "--out", str(tmp_path / "out")],
+            ["forecast", str(short), "--distances", "3,5", "--work", "1e6", "--out", str(tmp_path / "out")]]
+    for arguments in runs:
+        assert main(arguments) == 2, arguments
+        err = [line for line in capsys.readouterr().err.splitlines() if line.strip() and "placements:" not in line]
+        assert len(err) == 1 and ("marked usable = false" in err[0] or "must list 17 device qubits" in err[0]), err
+        assert not (tmp_path / "out").exists()
+
+
 def test_too_small_or_too_broken_device_names_the_largest_distance_that_fits() -> None:
     with pytest.raises(DeviceFileError) as info:
         noisy_circuit(point(grid_device(7, 7), distance=5))

@@ -243,8 +243,8 @@ def targets(code: str, fit: LambdaSummary | None, wanted: Sequence[float], large
                 np.asarray(fit.log_cov, dtype=np.float64), fit.lam_low, fit.lam_high)
             if fit.lam_low < NEAR_THRESHOLD_LAMBDA and (central is None or central > NEAR_THRESHOLD_REACH * largest):
                 out.append(replace(record, not_projected=(
-                    f"near threshold (Lambda {fit.lam:.3g} [{fit.lam_low:.3g}, {fit.lam_high:.3g}] "
-                    f"< {NEAR_THRESHOLD_LAMBDA:g}), Lambda drifts with d, and this target would need d > "
+                    f"near threshold (Lambda {fit.lam:.3g} [{fit.lam_low:.3g}, {fit.lam_high:.3g}], its interval "
+                    f"reaching below {NEAR_THRESHOLD_LAMBDA:g}), Lambda drifts with d, and this target would need d > "
                     f"{NEAR_THRESHOLD_REACH * largest}: a constant Lambda is not supported that far; forecast "
                     "larger distances instead")))
                 continue

@@ -98,6 +98,7 @@ def placements_report(device_file: str | Path | Device, code: str, distance: int
     rows = []
     gate_set = model.circuit_gate_set()
     ideal = family.ideal_circuit(distance, distance, family.bases[0], gate_set)
+    model.checked_map(ideal, chosen)  # an explicit or hand-written placement must fit the chip too
     shown = _shown(ranked, top)
     for n, index in enumerate(shown):
         r = ranked[index]

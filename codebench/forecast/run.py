@@ -158,11 +158,16 @@ def placements(device: Device, code: str, distances: Sequence[int]) -> dict[int,
     """The device qubits each distance's patch sits on (hand-written layouts and automatic placements);
     raises :class:`~codebench.errors.DeviceFileError` when a patch does not fit the coupling graph."""
     model = DeviceNoise(1.0, device=device.canonical_json())
+    family = CODE_FAMILIES[code]
     out = {}
     for d in distances:
         qubits = model.placement(code, d)
-        if qubits is not None:
-            out[d] = qubits
+        if qubits is None:
+            continue
+        if not isinstance(device.placement, str) and device.layout_map(code, d) is None:
+            # An explicit list names one patch's qubits: it fits one distance, checked before anything runs.
+            model.checked_map(family.ideal_circuit(d, 1, family.bases[0], model.circuit_gate_set()), qubits)
+        out[d] = qubits
     return out
 
 

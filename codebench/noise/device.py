@@ -50,7 +50,7 @@ from __future__ import annotations
 
 import copy
 import math
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any, ClassVar
 
@@ -202,12 +202,21 @@ class DeviceNoise(NoiseModel):
         mapping = self.placement(layout.family, layout.distance)
         if mapping is None:
             return {q: None for q in ideal.qubits}
-        if len(mapping) != len(ideal.qubits):  # an explicit placement (the reader checked [[layouts]])
+        return self.checked_map(ideal, mapping)
+
+    def checked_map(self, ideal: IdealCircuit, placement: Sequence[str]) -> dict[int, str | None]:
+        """Code qubit -> device qubit of ``placement``, refused in one line unless it has one device qubit per
+        code qubit, uses no unusable qubit, and puts every two-qubit gate on a usable coupler."""
+        layout = ideal.layout
+        if len(placement) != len(ideal.qubits):  # an explicit placement (the reader checked [[layouts]])
             raise DeviceFileError(
                 f"device {self.device.name!r}: placement must list {len(ideal.qubits)} device "
-                f"qubits (one per qubit of {layout.family} d={layout.distance}); got {len(mapping)}."
+                f"qubits (one per qubit of {layout.family} d={layout.distance}); got {len(placement)}."
             )
-        return {q: mapping[i] for i, q in enumerate(ideal.qubits)}
+        mapping: dict[int, str | None] = {q: placement[i] for i, q in enumerate(ideal.qubits)}
+        self._map = mapping
+        self._check_coupling(ideal)
+        return mapping
 
     def placement(self, code: str, distance: int) -> tuple[str, ...] | None:
         """The device qubit of each code qubit (``None``: no map, the defaults apply).
@@ -353,7 +362,7 @@ class DeviceNoise(NoiseModel):
 
     def qubit_names(self, ideal: IdealCircuit) -> dict[int, str] | None:
         """Device qubit of each code qubit, from the file's ``[[layouts]]`` entry (``None`` without one)."""
-        mapping = self._device_qubits(ideal)
+        mapping = self._device_qubits(ideal)  # checked against the chip, as for the circuit
         if any(name is None for name in mapping.values()):
             return None
         return {q: str(name) for q, name in mapping.items()}

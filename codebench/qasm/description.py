@@ -25,7 +25,10 @@ from pathlib import Path
 from typing import Any
 
 from codebench.circuits import IdealCircuit
+from codebench.codes import CODE_FAMILIES
+from codebench.decoders import DECODERS
 from codebench.errors import DataError, not_allowed
+from codebench.noise import NOISE_MODELS
 from codebench.records import Point
 
 FORMAT = "codebench experiment description"
@@ -152,6 +155,10 @@ def description_from_json(data: Any, source: str) -> Description:
         point = Point.from_params(params)
     except (KeyError, TypeError, ValueError) as exc:
         raise DataError(f"{source}: point lacks or mangles {exc}.") from None
+    for key, known in (("code", CODE_FAMILIES), ("noise", NOISE_MODELS), ("decoder", DECODERS)):
+        name = str(params[key])
+        if name not in known and not (key == "decoder" and ":" in name):  # a plug-in decoder is module:Class
+            raise DataError(f"{source}: " + not_allowed(f"point.{key}", name, " | ".join(sorted(known))))
     gate_set = _get(data, "gate_set", str, source, "cz or cx")
     if gate_set not in ("cz", "cx"):
         raise DataError(f"{source}: " + not_allowed("gate_set", gate_set, "cz or cx"))
