@@ -206,3 +206,25 @@ def test_inspect_writes_tables_model_and_figures(tmp_path: Path, perturbed: tupl
     reweighted = stim.DetectorErrorModel((out / "reweighted.dem").read_text())
     assert reweighted.num_detectors == 24 and reweighted.num_observables == 1
     assert "Fault sources" in capsys.readouterr().out
+
+
+def test_qubit_map_is_drawn_on_the_chip_where_the_device_has_geometry() -> None:
+    """On a device with a coupling graph the patch's qubits are device qubits with chip coordinates: the map
+    puts them there (the chip's own layout, issue 10's geometry), not at the code's coordinates."""
+    from codebench.config import parse_sweep
+    from codebench.figures.lab import qubit_map
+    from codebench.noise.calibration import load_device
+
+    grid = Path(__file__).parents[1] / "configs" / "devices" / "larkspur_grid.toml"
+    point = parse_sweep({"name": "chip", "seed": 1, "study": [
+        {"code": "rotated_surface", "distances": [3], "rounds": 3, "noise": "device", "device": str(grid),
+         "decoders": ["mwpm"]}]}, source="test").points[0]
+    experiment = experiment_of(point, None)
+    dets, obs = experiment.events(sample_records(noisy_circuit(point), 2000, seed=4))
+    result = analyse(experiment, dets, obs)
+    fig = qubit_map(result)
+    ax = fig.axes[0]
+    assert ax.get_xlabel() == "x (chip coordinate)"
+    chip = load_device(grid).geometry.coords
+    placed = {text.get_text(): text.xy for text in ax.texts if text.get_text() in chip}
+    assert len(placed) == 17 and all(tuple(xy) == chip[name] for name, xy in placed.items())

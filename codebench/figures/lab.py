@@ -87,8 +87,11 @@ def qubit_map(result: Departures) -> Figure:
     for source in result.sources:
         for qubit in source.qubits:
             worst.setdefault(qubit, source.z)
-    xs = [q.coords[0] for q in description.qubits]
-    ys = [q.coords[1] for q in description.qubits]
+    chip = _chip_coordinates(result)
+    where = {q.name: chip.get(q.name, q.coords) for q in description.qubits}
+    on_chip = bool(chip) and all(q.name in chip for q in description.qubits)
+    xs = [where[q.name][0] for q in description.qubits]
+    ys = [where[q.name][1] for q in description.qubits]
     values = [excess.get(q.name, np.nan) for q in description.qubits]
     finite = [abs(v) for v in values if np.isfinite(v)] or [1e-3]
     scale = max(finite) or 1e-3
@@ -101,11 +104,12 @@ def qubit_map(result: Departures) -> Figure:
                linewidths=1.4, zorder=1)
     for q, value in zip(description.qubits, values):
         dark = bool(np.isfinite(value)) and abs(value) > 0.6 * scale
-        ax.annotate(q.name, (q.coords[0], q.coords[1]), ha="center", va="center", fontsize=8,
+        ax.annotate(q.name, where[q.name], ha="center", va="center", fontsize=8,
                     color="white" if dark else INK, zorder=3)
     fig.colorbar(shades, ax=ax, label="excess detection fraction (measured - model)")
-    ax.set_xlabel("x (code coordinate)")
-    ax.set_ylabel("y (code coordinate)")
+    frame = "chip coordinate" if on_chip else "code coordinate"
+    ax.set_xlabel(f"x ({frame})")
+    ax.set_ylabel(f"y ({frame})")
     ax.set_aspect("equal")
     ax.margins(0.15)
     ax.grid(False)
@@ -115,6 +119,16 @@ def qubit_map(result: Departures) -> Figure:
     ax.legend(handles=keys, loc="upper center", bbox_to_anchor=(0.5, -0.14), ncol=1, fontsize=9, frameon=False)
     titles(ax, "Where the device departs from its model", _subline(result))
     return fig
+
+
+def _chip_coordinates(result: Departures) -> dict[str, tuple[float, float]]:
+    """Device qubit -> its place on the chip, where the point's device file gives the chip's geometry."""
+    options = dict(result.experiment.point.noise_options)
+    if "device" not in options:
+        return {}
+    from codebench.noise.calibration import device_from_json
+
+    return dict(device_from_json(options["device"]).geometry.coords)
 
 
 def write_lab_figures(folder: Path, result: Departures) -> list[FigureFile]:
