@@ -21,6 +21,7 @@ from codebench.cli_args import (
     bounded_int,
     point_options,
     positive_int,
+    rates,
 )
 from codebench.cli_device import add_device_commands
 from codebench.cli_lab import add_lab_commands
@@ -94,16 +95,6 @@ def cmd_export(args: argparse.Namespace) -> int:
         raise ConfigError(not_allowed("--csv", args.csv, f"a file path codebench can write ({reason})")) from None
     print(f"wrote {path}")
     return EXIT_OK
-
-
-def _targets(text: str) -> list[float]:
-    try:
-        values = [float(part) for part in text.split(",") if part.strip()]
-    except ValueError:
-        values = []
-    if not values or not all(0 < v < 0.5 for v in values):
-        raise argparse.ArgumentTypeError(not_allowed("--targets", text, "comma-separated rates in (0, 0.5)"))
-    return values
 
 
 def _analysis(args: argparse.Namespace) -> tuple[pd.DataFrame, AnalysisResult]:
@@ -253,7 +244,7 @@ def build_parser() -> argparse.ArgumentParser:
         if verb != "analyze":
             verb_parser.add_argument("--to", metavar="FOLDER",
                                      help=f"write the {verb} into FOLDER instead of DIR (for read-only results)")
-        verb_parser.add_argument("--targets", type=_targets, default=[1e-6, 1e-9, 1e-12],
+        verb_parser.add_argument("--targets", type=rates("--targets"), default=[1e-6, 1e-9, 1e-12],
                                  help="target per-round rates for projections (default: 1e-6,1e-9,1e-12)")
         verb_parser.add_argument("--interval", choices=sorted(INTERVALS), default="wilson",
                                  help="95%% binomial interval of the tables (default: wilson)")

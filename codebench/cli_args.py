@@ -66,15 +66,19 @@ def distances(text: str) -> list[int]:
     return values
 
 
-def rates(text: str) -> list[float]:
-    try:
-        values = [float(part) for part in text.split(",") if part.strip()]
-    except ValueError:
-        values = []
-    if not values or not all(0 < v < 0.5 for v in values):
-        raise argparse.ArgumentTypeError(not_allowed("--target", text, "a per-round rate in (0, 0.5) "
-                                                     "(or several, comma-separated)"))
-    return values
+def rates(flag: str) -> Callable[[str], list[float]]:
+    """An argparse type: per-round rates in (0, 0.5), comma-separated, refused naming ``flag``."""
+    def parse(text: str) -> list[float]:
+        try:
+            values = [float(part) for part in text.split(",") if part.strip()]
+        except ValueError:
+            values = []
+        if not values or not all(0 < v < 0.5 for v in values):
+            raise argparse.ArgumentTypeError(not_allowed(flag, text, "a per-round rate in (0, 0.5) "
+                                                         "(or several, comma-separated)"))
+        return values
+
+    return parse
 
 
 def improvement(text: str) -> tuple[str, float]:

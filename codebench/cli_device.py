@@ -87,7 +87,7 @@ def add_device_commands(sub: Any) -> None:
                          "failing; default: Z)")
     fc.add_argument("--decoder", help="decoder (default: the code family's, flag_matching for heavy_hex, "
                                       "mwpm otherwise)")
-    fc.add_argument("--target", type=rates, action="append",
+    fc.add_argument("--target", type=rates("--target"), action="append",
                     help="target per-round rate; repeatable or comma-separated (default: 1e-6,1e-9,1e-12)")
     budget = fc.add_mutually_exclusive_group()
     budget.add_argument("--budget-seconds", default=60.0,
