@@ -194,18 +194,28 @@ def _record(sweep: Sweep, folder: Path, members: list[tuple[StoredPoint, str]], 
     return frame
 
 
-def load_results(folder: str | Path, interval: str = "wilson") -> pd.DataFrame:
-    """The results table of a sweep folder, rebuilt from its store (95% intervals by ``interval``)."""
+def load_results(folder: str | Path, interval: str = "wilson", unlisted: bool = False) -> pd.DataFrame:
+    """The results table of a sweep folder, rebuilt from its store (95% intervals by ``interval``).
+
+    ``unlisted``: also the stored points that the sweep file of the latest run no longer lists.
+    """
     path = Path(folder) / STORE_NAME
     if not path.exists():
         raise StoreError(f"no results store at '{path}' (run `codebench sweep` first).")
     with Store(path, create=False) as store:
-        return results_frame(store, interval)
+        return results_frame(store, interval, unlisted)
 
 
-def export_csv(folder: str | Path, csv_path: str | Path | None = None, interval: str = "wilson") -> Path:
+def unlisted_count(folder: str | Path) -> int:
+    """How many stored points of ``folder`` the sweep file of its latest run no longer lists."""
+    with Store(Path(folder) / STORE_NAME, create=False) as store:
+        return len(store.unlisted())
+
+
+def export_csv(folder: str | Path, csv_path: str | Path | None = None, interval: str = "wilson",
+               unlisted: bool = False) -> Path:
     """Rewrite the results CSV of ``folder`` from its store."""
-    frame = load_results(folder, interval)
+    frame = load_results(folder, interval, unlisted)
     return write_csv(frame, Path(csv_path) if csv_path is not None else Path(folder) / CSV_NAME)
 
 

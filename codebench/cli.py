@@ -87,12 +87,13 @@ def cmd_export(args: argparse.Namespace) -> int:
         raise ConfigError(f"the results folder '{args.dir}' is read-only; give --csv FILE to write the table "
                           "elsewhere.")
     try:
-        path = export_csv(args.dir, args.csv, args.interval)
+        path = export_csv(args.dir, args.csv, args.interval, args.all)
     except OutputError as exc:
         if args.csv is None:
             raise
         reason = str(exc).rstrip(".")
         raise ConfigError(not_allowed("--csv", args.csv, f"a file path codebench can write ({reason})")) from None
+    _say_unlisted(args)
     print(f"wrote {path}")
     return EXIT_OK
 
@@ -101,8 +102,22 @@ def _analysis(args: argparse.Namespace) -> tuple[pd.DataFrame, AnalysisResult]:
     from codebench.analysis import analyze
     from codebench.api import load_results
 
-    frame = load_results(args.dir, args.interval)
+    frame = load_results(args.dir, args.interval, args.all)
+    _say_unlisted(args)
     return frame, analyze(frame, targets=args.targets, bootstrap=args.bootstrap, seed=args.seed)
+
+
+def _say_unlisted(args: argparse.Namespace) -> None:
+    """A note on standard error when the store holds points the current sweep file no longer lists."""
+    from codebench.api import unlisted_count
+
+    count = unlisted_count(args.dir)
+    if count and not args.all:
+        print(f"codebench: note: {count} stored point(s) are not in the sweep file of the latest run (it was "
+              "edited); --all includes them.", file=sys.stderr)
+    elif count:
+        print(f"codebench: note: {count} stored point(s) not in the sweep file of the latest run are included "
+              "under the study '(not in the sweep file)'.", file=sys.stderr)
 
 
 def _output_folder(args: argparse.Namespace, what: str) -> Path:
@@ -206,6 +221,11 @@ def _version_line() -> str:
     return f"codebench {of('codebench')} ({libraries}; Python {sys.version.split()[0]})"
 
 
+def _all_option(verb: argparse.ArgumentParser) -> None:
+    verb.add_argument("--all", action="store_true",
+                      help="also the stored points the sweep file of the latest run no longer lists")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = Parser(prog="codebench", description="Logical-qubit memory experiments: sample, decode, fit.")
     parser.add_argument("--version", action=_VersionAction, nargs=0,
@@ -230,6 +250,7 @@ def build_parser() -> argparse.ArgumentParser:
     export.add_argument("--csv", help="where to write (default: DIR/results.csv)")
     export.add_argument("--interval", choices=sorted(INTERVALS), default="wilson",
                         help="95%% binomial interval (default: wilson)")
+    _all_option(export)
     export.set_defaults(func=cmd_export)
 
     for verb, func, text in (
@@ -244,6 +265,7 @@ def build_parser() -> argparse.ArgumentParser:
         if verb != "analyze":
             verb_parser.add_argument("--to", metavar="FOLDER",
                                      help=f"write the {verb} into FOLDER instead of DIR (for read-only results)")
+        _all_option(verb_parser)
         verb_parser.add_argument("--targets", type=rates("--targets"), default=[1e-6, 1e-9, 1e-12],
                                  help="target per-round rates for projections (default: 1e-6,1e-9,1e-12)")
         verb_parser.add_argument("--interval", choices=sorted(INTERVALS), default="wilson",

@@ -723,3 +723,28 @@ def test_circuit_point_out_of_range(grid_file: Path) -> None:
     assert done.stdout == ""
     lines = done.stderr.strip().splitlines()
     assert len(lines) == 1 and "--point" in lines[0] and "99" in lines[0], done.stderr
+
+
+def test_points_a_changed_sweep_file_no_longer_lists_stay_reachable(tmp_path: Path,
+                                                                    capsys: pytest.CaptureFixture[str]) -> None:
+    """Edit a sweep and rerun it into the same folder: the dropped point stays in the store, the CSV and the
+    analysis say so on standard error, and --all brings it back (under its own study label)."""
+    from codebench.cli import main
+
+    text = ('name = "edited"\nseed = 3\n[stopping]\nshot_budget = 2000\n[[study]]\ncode = "repetition"\n'
+            'distances = [3, 5]\nrounds = "d"\nnoise = "si1000"\np = {P}\ndecoders = ["mwpm"]\n')
+    sweep = tmp_path / "edited.toml"
+    out = tmp_path / "out"
+    sweep.write_text(text.replace("{P}", "[0.01, 0.02]"))
+    assert main(["sweep", str(sweep), "--out", str(out), "--workers", "1", "--quiet"]) == 0
+    sweep.write_text(text.replace("{P}", "[0.01]"))
+    assert main(["sweep", str(sweep), "--out", str(out), "--workers", "1", "--quiet"]) == 0
+    capsys.readouterr()
+    assert len(pd.read_csv(out / "results.csv")) == 2
+    assert main(["export", str(out), "--csv", str(tmp_path / "listed.csv")]) == 0
+    assert "2 stored point(s) are not in the sweep file" in capsys.readouterr().err
+    assert main(["export", str(out), "--csv", str(tmp_path / "all.csv"), "--all"]) == 0
+    every = pd.read_csv(tmp_path / "all.csv")
+    assert len(every) == 4 and sorted(every.loc[every["study"] == "(not in the sweep file)", "p"]) == [0.02, 0.02]
+    assert main(["analyze", str(out), "--bootstrap", "20"]) == 0
+    assert "--all includes them" in capsys.readouterr().err

@@ -20,6 +20,7 @@ from codebench.report.blocks import (
     with_interval,
 )
 from codebench.report.run import incomplete
+from codebench.results.store import UNLISTED
 
 #: Points with fewer failures than this are listed under the cautions.
 FEW_FAILURES = 10
@@ -36,6 +37,12 @@ def cautions(frame: pd.DataFrame, analysis: dict[str, Any], problems: list[str])
     out.append(_extrapolation_caution(analysis))
     out.append(_few_failures_caution(frame))
     out.append(_saturation_caution(frame))
+    if "study" in frame.columns and (frame["study"] == UNLISTED).any():
+        listed_not = frame[frame["study"] == UNLISTED]
+        out.append(Caution("Points the sweep file no longer lists", f"{len(listed_not)} stored point(s) are not in "
+                           "the sweep file of the latest run (it was edited after they were sampled); shown because "
+                           "--all was given, under the study '(not in the sweep file)', counted by the latest "
+                           "run's stopping rule.", points_table("unlisted", listed_not)))
     stopped = incomplete(frame)
     if len(stopped):
         table = points_table("incomplete-points", stopped)

@@ -11,7 +11,7 @@ import pandas as pd
 from codebench.files import write_atomically
 from codebench.noise import NOISE_MODELS
 from codebench.records import BatchSchedule, Point
-from codebench.results.store import MeasuredResult, Store
+from codebench.results.store import UNLISTED, MeasuredResult, Store
 from codebench.results.tally import tally, usable_batches
 from codebench.stats import binomial_interval, per_round
 
@@ -62,8 +62,11 @@ def _per_round(total: float, rounds: int) -> float:
     return float("nan") if math.isnan(total) else per_round(total, rounds)
 
 
-def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
+def results_frame(store: Store, interval: str = "wilson", unlisted: bool = False) -> pd.DataFrame:
     """The results table of the store's latest run, then its measured points (column ``source``).
+
+    ``unlisted``: also the stored points the latest run's sweep file no longer lists (the file was
+    edited), under the study ``(not in the sweep file)``, counted by the latest run's stopping rule.
 
     ``failure_rate`` is failures / shots with a 95% interval by ``interval``
     (``wilson``, ``jeffreys`` or ``clopper_pearson``; named in the
@@ -75,7 +78,7 @@ def results_frame(store: Store, interval: str = "wilson") -> pd.DataFrame:
     to compare with the duration of a syndrome round.
     """
     measured = store.measured()
-    rows = _simulated_rows(store, interval) if store.has_sweep() or not measured else []
+    rows = _simulated_rows(store, interval, unlisted) if store.has_sweep() or not measured else []
     rows.extend(_measured_row(result, interval) for result in measured)
     return pd.DataFrame(rows, columns=COLUMNS + EXTRA_COLUMNS)
 
@@ -94,11 +97,12 @@ def _identity_columns(study: str, point: Point) -> dict[str, object]:
             "basis": point.basis, "noise": point.noise, "p": point.p, "decoder": point.decoder}
 
 
-def _simulated_rows(store: Store, interval: str) -> list[dict[str, object]]:
+def _simulated_rows(store: Store, interval: str, unlisted: bool = False) -> list[dict[str, object]]:
     stopping = store.stopping()
     stored = store.all_batches()
     rows: list[dict[str, object]] = []
-    for member, study in store.members():
+    members = store.members() + ([(point, UNLISTED) for point in store.unlisted()] if unlisted else [])
+    for member, study in members:
         point = member.point
         sizes = BatchSchedule(stopping.shot_budget, member.batch_cap)
         t = tally(sizes, usable_batches(sizes, stored.get(member.key, [])), stopping)

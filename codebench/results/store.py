@@ -97,6 +97,10 @@ class MeasuredResult:
     records: str
 
 
+#: The study label of stored points that the current sweep file no longer lists.
+UNLISTED = "(not in the sweep file)"
+
+
 class Store:
     """Open (or create) the store at ``path``.
 
@@ -284,6 +288,15 @@ class Store:
             (StoredPoint(key, Point.from_params(json.loads(params), study), qubits, detectors, cap), study)
             for key, params, qubits, detectors, cap, study in rows
         ]
+
+    def unlisted(self) -> list[StoredPoint]:
+        """Stored points with batches that the latest run's sweep file no longer lists (it was edited)."""
+        rows = self._db.execute(
+            "SELECT p.key, p.params, p.qubits, p.detectors, p.batch_cap FROM points p "
+            "WHERE p.key NOT IN (SELECT key FROM members) AND p.key IN (SELECT key FROM batches) ORDER BY p.key"
+        ).fetchall()
+        return [StoredPoint(key, Point.from_params(json.loads(params), UNLISTED), qubits, detectors, cap)
+                for key, params, qubits, detectors, cap in rows]
 
     def batches(self, key: str) -> Iterator[BatchResult]:
         for row in self._db.execute(
