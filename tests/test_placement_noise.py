@@ -198,3 +198,20 @@ def test_links_ten_times_the_bulk_keep_the_patch_below_threshold() -> None:
     assert rows[(5, 10.0)].low > rows[(5, 1.0)].high
     assert rows[(3, 10.0)].low / rows[(5, 10.0)].high > 2.0
     assert rows[(3, 1.0)].low / rows[(5, 1.0)].high > 2.0
+
+
+def test_what_ifs_on_parameters_the_device_lacks_are_refused() -> None:
+    """--improve link_error on a device without links, or zz_khz without any ZZ rate, would change nothing:
+    one line naming the option instead of the device as it is (common practice: no silent no-op)."""
+    from codebench.errors import ConfigError
+
+    plain = parse_device(grid_device(5, 5))
+    with pytest.raises(ConfigError, match=r"--improve.*no coupler link = true.*link_error=0.2"):
+        improve_device(plain, {"link_error": 0.2})
+    with pytest.raises(ConfigError, match=r"--improve.*residual ZZ.*zz_khz=2"):
+        improve_device(plain, {"zz_khz": 2.0})
+    # With links or a ZZ rate they apply.
+    assert improve_device(parse_device(two_chips()), {"link_error": 0.5}) is not None
+    with_zz = grid_device(5, 5)
+    with_zz["defaults"] = {**with_zz["defaults"], "zz_khz": 50.0}
+    assert improve_device(parse_device(with_zz), {"zz_khz": 0.5}).data["defaults"]["zz_khz"] == 25.0

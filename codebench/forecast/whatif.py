@@ -82,6 +82,7 @@ def improve_device(device: Device, improve: Mapping[str, float], source: str = "
 
     tables = [data.get("defaults")] + list(data.get("qubits", []) or [])
     pairs = list(data.get("pairs", []) or [])
+    _refuse_what_ifs_that_change_nothing(factors, data, pairs)
     expanded: list[tuple[str, float]] = []
     for name, factor in factors.items():
         expanded += [(each, factor) for each in SCALED_TOGETHER] if name == "noise" else [(name, factor)]
@@ -105,6 +106,19 @@ def improve_device(device: Device, improve: Mapping[str, float], source: str = "
                     scale(pair, "gate_2q_error", factor, False)
     spec = ",".join(f"{k}={v:g}" for k, v in factors.items())
     return parse_device(data, f"{source} with --improve {spec}")
+
+
+def _refuse_what_ifs_that_change_nothing(factors: Mapping[str, float], data: dict[str, Any],
+                                         pairs: list[Any]) -> None:
+    """``link_error`` on a device without links, or ``zz_khz`` where no coupler has ZZ, would silently give
+    the device as it is: one line instead (the user meant another device, or another parameter)."""
+    if "link_error" in factors and not any(isinstance(p, dict) and p.get("link") is True for p in pairs):
+        raise ConfigError(not_allowed("--improve", f"link_error={factors['link_error']:g}",
+                                      "a parameter the device has: it marks no coupler link = true"))
+    rates = [data.get("defaults", {}).get("zz_khz")] + [p.get("zz_khz") for p in pairs if isinstance(p, dict)]
+    if "zz_khz" in factors and not any(isinstance(r, (int, float)) and r > 0 for r in rates):
+        raise ConfigError(not_allowed("--improve", f"zz_khz={factors['zz_khz']:g}",
+                                      "a parameter the device has: no coupler has a residual ZZ rate above 0"))
 
 
 def place_device(device: Device, placement: str | Sequence[str] | None, source: str = "<device>") -> Device:
