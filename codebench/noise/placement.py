@@ -38,6 +38,7 @@ error numbers (:func:`rank`'s ``cheap``).
 
 from __future__ import annotations
 
+import dataclasses
 import heapq
 import math
 from dataclasses import dataclass
@@ -157,12 +158,17 @@ def largest_fitting(geometry: Geometry, family: CodeFamily, gate_set: GateSet, b
 def unplaced_problem(geometry: Geometry, family: CodeFamily, distance: int, gate_set: GateSet) -> str:
     """The one-line reason a patch does not fit, naming the largest distance that does."""
     usable = len([q for q in geometry.nodes if q not in geometry.dead_qubits])
-    need = len(interaction_graph(family, distance, gate_set)[0])
+    qubits, pairs = interaction_graph(family, distance, gate_set)
+    need = len(qubits)
     unusable = len(geometry.dead_qubits) + len(geometry.dead_pairs)
     largest = largest_fitting(geometry, family, gate_set, distance)
+    # Blame the unusable marks only when the patch would fit without them.
+    whole = dataclasses.replace(geometry, dead_qubits=frozenset(), dead_pairs=frozenset())
+    blame = unusable and fits(whole, qubits, pairs)
     reason = (f"{need} qubits needed, {usable} usable" if need > usable
               else f"no region of {need} usable qubits with every coupler the code needs"
-                   + (f" ({unusable} qubits / couplers are marked unusable)" if unusable else ""))
+                   + (f" ({unusable} qubits / couplers are marked unusable)" if blame else
+                      " (not even with every qubit and coupler usable)" if unusable else ""))
     fits_text = (f"the largest distance that fits is {largest}" if largest is not None
                  else f"no distance of {family.name} fits")
     return f"{family.name} d={distance} does not fit on the device ({reason}); {fits_text}."
