@@ -48,6 +48,7 @@ def cmd_placements(args: argparse.Namespace) -> int:
     from codebench.figures.chip import write_chip_figure
     from codebench.forecast.placements import (
         COLOUR_KEYS,
+        RANKED_CHOICES,
         placements_report,
         placements_text,
     )
@@ -70,7 +71,8 @@ def cmd_placements(args: argparse.Namespace) -> int:
     png, svg = write_chip_figure(
         report.device, report.chosen, used_pairs, args.colour_by, COLOUR_KEYS[args.colour_by],
         f"{args.code} d={args.distance} on {report.device.name}",
-        f"{report.choice} of {report.found} placements by the logical-error proxy",
+        (f"{report.choice} of {report.found} placements by the logical-error proxy"
+         if report.choice in RANKED_CHOICES else f"placement given by {report.choice} ({report.found} exist)"),
         out / f"placements_{args.code}_d{args.distance}")
     print(f"wrote {png}, {svg}", file=sys.stderr)
     return EXIT_OK

@@ -72,6 +72,10 @@ def _shown(ranked: Sequence[Ranked], top: int) -> list[int]:
     return picks
 
 
+#: Choices made by ranking; any other ``choice`` names where an explicit placement came from.
+RANKED_CHOICES = ("best", "worst", "median")
+
+
 def placements_report(device_file: str | Path | Device, code: str, distance: int, *, top: int = 10,
                       sample: bool = False, shots: int = 20_000, seed: int = 1,
                       improve: Mapping[str, float] | None = None,
@@ -113,7 +117,10 @@ def placements_report(device_file: str | Path | Device, code: str, distance: int
                                per_round(failures / shots, distance), per_round(low, distance),
                                per_round(high, distance))
         rows.append(row)
-    choice = device.placement if isinstance(device.placement, str) else "explicit"
+    if device.layout_map(code, distance) is not None:
+        choice = "the [[layouts]] entry"
+    else:
+        choice = device.placement if isinstance(device.placement, str) else "the placement list"
     return PlacementsReport(device, code, distance, len(ranked), model.placements_found(code, distance),
                             tuple(rows), chosen, choice)
 
@@ -139,7 +146,7 @@ def placements_text(report: PlacementsReport) -> str:
     lines = [
         f"Placements of {report.code} d={report.distance} on {dev.name}: {report.found} found on "
         f"{usable} usable of {len(dev.geometry.nodes)} qubits"
-        + (f", {report.candidates} ranked (those nearest the {report.choice if report.choice != 'explicit' else 'best'} end of the summed error numbers)"
+        + (f", {report.candidates} ranked (those nearest the {report.choice if report.choice in RANKED_CHOICES else 'best'} end of the summed error numbers)"
            if report.candidates < report.found else ""),
         "proxy: sum over error mechanisms of exp(-W/2), W the weight (nats) of the lightest logical failure "
         "through each, both bases; lower is better",
@@ -160,7 +167,8 @@ def placements_text(report: PlacementsReport) -> str:
         lines.append("  ".join(cell.ljust(w) for cell, w in zip(row, widths)).rstrip())
         if n == 0:
             lines.append("  ".join("-" * w for w in widths))
-    lines += ["", f"chosen ({report.choice}): {', '.join(report.chosen)}"]
+    lines += ["", f"chosen ({report.choice if report.choice in RANKED_CHOICES else 'given by ' + report.choice}): "
+                  f"{', '.join(report.chosen)}"]
     if sampled:
         lines.append(f"sampled: {report.rows[0].shots:,} shots each of the rounds = d memory in the "
                      f"{CODE_FAMILIES[report.code].bases[0]} basis, decoder "
