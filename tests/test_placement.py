@@ -3,8 +3,8 @@
 Sources, beside each check:
 
 - The rotated surface code's data and measure qubits alternate on a square grid with
-  nearest-neighbour couplers (common practice for square-grid chips; Fowler, Mariantoni, Martinis,
-  Cleland, PRA 86, 032324 (2012), Fig. 1), so a distance-d patch is a diamond in a 2d - 1 square.
+  nearest-neighbour couplers (common practice for square-grid chips; Fowler et al., PRA 86, 032324
+  (2012), Fig. 1), so a distance-d patch is a diamond in a 2d - 1 square.
 - Placements counted by a plain brute-force enumeration written in this file, by networkx's VF2 matcher (Cordella, Foggia,
   Sansone, Vento, IEEE TPAMI 26, 1367 (2004)) and, for the surface code on a grid, built as
   translations x the 8 symmetries of the square (dihedral group D4; common practice).
