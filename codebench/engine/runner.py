@@ -12,7 +12,7 @@ import math
 import signal
 from dataclasses import dataclass, field
 from types import FrameType
-from typing import Callable, Iterator, Sequence
+from typing import Any, Callable, Iterator, Sequence
 
 from codebench.build import point_label, qubit_count
 from codebench.decoders import get_decoder
@@ -126,22 +126,35 @@ class RunPlan:
 
 
 class StopSignals:
-    """Turn SIGTERM into :class:`Interrupted` while a run is active (SIGINT already raises)."""
+    """Turn SIGTERM (and Ctrl-C's SIGINT) into :class:`Interrupted` while a run is active.
+
+    The handlers raise, which stops whatever blocks, and also record the request: an exception raised
+    while Python runs a weakref callback or a ``__del__`` is printed and dropped ("Exception ignored
+    in ..."), so :func:`execute` checks the record between rounds of results as well.
+    """
+
+    requested = False
 
     def __enter__(self) -> None:
-        self._previous = signal.getsignal(signal.SIGTERM)
+        StopSignals.requested = False
+        self._previous: dict[int, Any] = {}
         try:
-            signal.signal(signal.SIGTERM, self._raise)
+            self._previous[signal.SIGTERM] = signal.signal(signal.SIGTERM, self._raise)
+            if signal.getsignal(signal.SIGINT) is signal.default_int_handler:  # not when Ctrl-C is ignored
+                self._previous[signal.SIGINT] = signal.signal(signal.SIGINT, self._raise)
         except ValueError:  # not the main thread: leave signals alone
-            self._previous = None
+            self._previous = {}
 
     @staticmethod
     def _raise(signum: int, frame: FrameType | None) -> None:
+        StopSignals.requested = True
+        if signum == signal.SIGINT:
+            raise KeyboardInterrupt
         raise Interrupted(f"signal {signum}")
 
     def __exit__(self, *exc: object) -> None:
-        if self._previous is not None:
-            signal.signal(signal.SIGTERM, self._previous)
+        for signum, previous in self._previous.items():
+            signal.signal(signum, previous)
 
 
 def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress | None,
@@ -166,6 +179,8 @@ def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress 
     interrupted = False
     try:
         while not all(run.tally.finished for run in runs):
+            if StopSignals.requested:  # a signal whose exception was swallowed where it landed
+                raise Interrupted("signal")
             if stop_when is not None and stop_when():
                 break
             _fill(runs, plan.stopping, executor, ship)
