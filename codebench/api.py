@@ -199,24 +199,31 @@ def load_results(folder: str | Path, interval: str = "wilson", unlisted: bool = 
 
     ``unlisted``: also the stored points that the sweep file of the latest run no longer lists.
     """
+    return results_and_unlisted(folder, interval, unlisted)[0]
+
+
+def results_and_unlisted(folder: str | Path, interval: str = "wilson",
+                         unlisted: bool = False) -> tuple[pd.DataFrame, int]:
+    """:func:`load_results`, and how many stored points the latest run's sweep file no longer lists
+    (one opening of the store for both)."""
     path = Path(folder) / STORE_NAME
     if not path.exists():
         raise StoreError(f"no results store at '{path}' (run `codebench sweep` first).")
     with Store(path, create=False) as store:
-        return results_frame(store, interval, unlisted)
-
-
-def unlisted_count(folder: str | Path) -> int:
-    """How many stored points of ``folder`` the sweep file of its latest run no longer lists."""
-    with Store(Path(folder) / STORE_NAME, create=False) as store:
-        return len(store.unlisted())
+        return results_frame(store, interval, unlisted), len(store.unlisted())
 
 
 def export_csv(folder: str | Path, csv_path: str | Path | None = None, interval: str = "wilson",
                unlisted: bool = False) -> Path:
     """Rewrite the results CSV of ``folder`` from its store."""
-    frame = load_results(folder, interval, unlisted)
-    return write_csv(frame, Path(csv_path) if csv_path is not None else Path(folder) / CSV_NAME)
+    return export_with_count(folder, csv_path, interval, unlisted)[0]
+
+
+def export_with_count(folder: str | Path, csv_path: str | Path | None = None, interval: str = "wilson",
+                      unlisted: bool = False) -> tuple[Path, int]:
+    """:func:`export_csv`, and how many stored points the latest run's sweep file no longer lists."""
+    frame, count = results_and_unlisted(folder, interval, unlisted)
+    return write_csv(frame, Path(csv_path) if csv_path is not None else Path(folder) / CSV_NAME), count
 
 
 __all__ = ["CodebenchError", "export_csv", "load_results", "run_sweep", "versions"]

@@ -81,37 +81,34 @@ def cmd_sweep(args: argparse.Namespace) -> int:
 
 
 def cmd_export(args: argparse.Namespace) -> int:
-    from codebench.api import export_csv
+    from codebench.api import export_with_count
 
     if args.csv is None and Path(args.dir).is_dir() and not os.access(args.dir, os.W_OK):
         raise ConfigError(f"the results folder '{args.dir}' is read-only; give --csv FILE to write the table "
                           "elsewhere.")
     try:
-        path = export_csv(args.dir, args.csv, args.interval, args.all)
+        path, count = export_with_count(args.dir, args.csv, args.interval, args.all)
     except OutputError as exc:
         if args.csv is None:
             raise
         reason = str(exc).rstrip(".")
         raise ConfigError(not_allowed("--csv", args.csv, f"a file path codebench can write ({reason})")) from None
-    _say_unlisted(args)
+    _say_unlisted(args, count)
     print(f"wrote {path}")
     return EXIT_OK
 
 
 def _analysis(args: argparse.Namespace) -> tuple[pd.DataFrame, AnalysisResult]:
     from codebench.analysis import analyze
-    from codebench.api import load_results
+    from codebench.api import results_and_unlisted
 
-    frame = load_results(args.dir, args.interval, args.all)
-    _say_unlisted(args)
+    frame, count = results_and_unlisted(args.dir, args.interval, args.all)
+    _say_unlisted(args, count)
     return frame, analyze(frame, targets=args.targets, bootstrap=args.bootstrap, seed=args.seed)
 
 
-def _say_unlisted(args: argparse.Namespace) -> None:
-    """A note on standard error when the store holds points the current sweep file no longer lists."""
-    from codebench.api import unlisted_count
-
-    count = unlisted_count(args.dir)
+def _say_unlisted(args: argparse.Namespace, count: int) -> None:
+    """A note on standard error when the store holds ``count`` points the current sweep file no longer lists."""
     if count and not args.all:
         print(f"codebench: note: {count} stored point(s) are not in the sweep file of the latest run (it was "
               "edited); --all includes them.", file=sys.stderr)
