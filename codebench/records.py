@@ -12,18 +12,23 @@ from __future__ import annotations
 
 import hashlib
 import json
+import zlib
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any, overload
 
 from codebench.layout import Basis
 from codebench.stats import wilson_interval
 
-__all__ = ["BatchResult", "BatchSchedule", "BatchTask", "ClusterSpec", "Point", "Stopping", "batch_cap", "batch_sizes"]
+__all__ = ["BatchResult", "BatchSchedule", "BatchTask", "ClusterSpec", "Point", "Stopping", "batch_cap", "batch_sizes",
+           "pack_failed", "unpack_failed"]
 
 
 # ---------------------------------------------------------------------------
 # points
+
+#: The decoder whose point key names a physical point's random stream (see :meth:`Point.sample_key`).
+SAMPLE_STREAM_DECODER = "mwpm"
 
 @dataclass(frozen=True)
 class Point:
@@ -62,6 +67,15 @@ class Point:
         """Stable 16-hex-digit key of the point under sweep ``seed``."""
         canonical = json.dumps({"seed": seed, **self.params()}, sort_keys=True, separators=(",", ":"))
         return hashlib.sha256(canonical.encode()).hexdigest()[:16]
+
+    def sample_key(self, seed: int) -> str:
+        """Key of the random stream the point's shots are drawn from: everything but the decoder.
+
+        It is the key of the same point decoded by :data:`SAMPLE_STREAM_DECODER` without options, so
+        decoders compared on one physical point decode identical shots (paired comparisons), and points
+        of that decoder draw the stream they always drew.
+        """
+        return replace(self, decoder=SAMPLE_STREAM_DECODER, decoder_options=()).key(seed)
 
     @classmethod
     def from_params(cls, params: dict[str, Any], study: str = "") -> Point:
@@ -215,11 +229,19 @@ class BatchTask:
     #: The point's detector error model, compressed (:func:`codebench.engine.models.pack_model`), so a
     #: remote worker need not derive it from the circuit; ``None``: the worker derives it.
     model: bytes | None = field(default=None, repr=False, compare=False)
+    #: Batches of other points with the same seed and shots (the same physical point under other
+    #: decoders): the worker samples once and decodes with each (:attr:`BatchResult.partners`).
+    partners: tuple[BatchTask, ...] = field(default=(), repr=False)
 
 
 @dataclass(frozen=True)
 class BatchResult:
-    """Counts of one finished batch. ``seconds`` covers sampling and decoding."""
+    """Counts of one finished batch. ``seconds`` covers sampling and decoding.
+
+    ``seed`` is the batch's random stream (batches of two points with equal seeds and shots hold
+    identical shots); ``failed`` says which of its shots failed (:func:`pack_failed`), so decoders
+    that decoded the same shots can be compared shot by shot.
+    """
 
     point_key: str
     batch_index: int
@@ -227,6 +249,31 @@ class BatchResult:
     failures: int
     seconds: float
     decode_seconds: float
+    seed: int | None = None
+    failed: bytes | None = field(default=None, repr=False, compare=False)
+    #: Results of the task's partners, in their order.
+    partners: tuple[BatchResult, ...] = field(default=(), repr=False, compare=False)
+
+
+def pack_failed(failed: Sequence[bool] | Any) -> bytes:
+    """Which shots of a batch failed, as compressed little-endian bits (one per shot).
+
+    Failures are rare where comparisons matter, so the bits compress to a few bytes per failure.
+
+    >>> unpack_failed(pack_failed([False, True, False, True, True]), 5).nonzero()[0].tolist()
+    [1, 3, 4]
+    """
+    import numpy as np
+
+    return zlib.compress(np.packbits(np.asarray(failed, dtype=bool), bitorder="little").tobytes(), 6)
+
+
+def unpack_failed(data: bytes, shots: int) -> Any:
+    """The boolean failure flags of a batch's ``shots`` shots from :func:`pack_failed`'s bytes."""
+    import numpy as np
+
+    bits = np.frombuffer(zlib.decompress(data), dtype=np.uint8)
+    return np.unpackbits(bits, count=shots, bitorder="little").astype(bool)
 
 
 # ---------------------------------------------------------------------------

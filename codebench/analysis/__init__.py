@@ -15,6 +15,7 @@ from typing import Sequence
 import numpy as np
 import pandas as pd
 
+from codebench.analysis.comparisons import DecoderComparison, decoder_comparisons
 from codebench.analysis.families import Family, FamilyId, group_families
 from codebench.analysis.measured import MeasuredComparison, compare_measured
 from codebench.analysis.projections import project
@@ -107,11 +108,11 @@ def analyze(
     general = () if families else ("no family of points with at least two distances: nothing to fit.",)
     return AnalysisResult(
         tuple(analyze_family(family, targets=targets, bootstrap=bootstrap, rng=rng) for family in families),
-        settings, general, compare_measured(frame))
+        settings, general, compare_measured(frame), decoder_comparisons(frame))
 
 
 __all__ = [
-    "DEFAULT_TARGETS", "AnalysisResult", "AnalysisSettings", "CrossingThreshold", "Family", "FamilyAnalysis",
+    "DEFAULT_TARGETS", "AnalysisResult", "DecoderComparison", "decoder_comparisons", "AnalysisSettings", "CrossingThreshold", "Family", "FamilyAnalysis",
     "FamilyId", "FssThreshold", "LambdaEstimate", "MeasuredComparison", "compare_measured", "LambdaPair", "Projection", "PseudoThreshold", "ScalingLaw",
     "ThresholdEstimate", "analyze", "analyze_family", "best_threshold", "crossing_thresholds", "fss_threshold",
     "group_families", "lambda_fits", "project", "pseudo_thresholds", "scaling_law_fit", "threshold_applies",

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Callable, Protocol, Sequence, TypeVar
 
+from codebench.analysis.comparisons import DecoderComparison
 from codebench.analysis.families import DEFAULT_SOURCE, FamilyId
 from codebench.analysis.measured import MeasuredComparison
 from codebench.analysis.records import (
@@ -83,6 +84,18 @@ def _gof(r: ThresholdEstimate) -> float | None:
     return r.gof_p_value if isinstance(r, FssThreshold) else None
 
 
+def _comparison_columns() -> list[Column[DecoderComparison]]:
+    return [
+        ("study", lambda r: r.study), ("code", lambda r: r.code), ("d", lambda r: r.distance),
+        ("basis", lambda r: r.basis), ("noise", lambda r: r.noise), ("p", lambda r: r.p),
+        ("first", lambda r: r.first), ("second", lambda r: r.second), ("shots", lambda r: r.shots),
+        ("failures 1st", lambda r: r.first_failures), ("failures 2nd", lambda r: r.second_failures),
+        ("only 1st", lambda r: r.first_only), ("only 2nd", lambda r: r.second_only),
+        ("difference", lambda r: r.difference), ("95% low", lambda r: r.low), ("95% high", lambda r: r.high),
+        ("unpaired low", lambda r: r.unpaired_low), ("unpaired high", lambda r: r.unpaired_high),
+        ("narrower by", lambda r: r.narrowing), ("McNemar p", lambda r: r.mcnemar_p)]
+
+
 def analysis_table(result: AnalysisResult) -> str:
     """All sections of an :func:`~codebench.analysis.analyze` result, one table each."""
     thresholds: list[Column[ThresholdEstimate]] = _family([
@@ -128,6 +141,11 @@ def analysis_table(result: AnalysisResult) -> str:
             ("measured/simulated", lambda r: r.ratio)]
         sections.append(_table("Measured beside simulated (per-round logical error; source = measured)",
                                result.measured, measured))
+    if result.decoder_comparisons:
+        sections.append(_table(
+            "Decoders on the same shots (failure probability of the whole experiment, first minus second; "
+            "paired 95% interval, Newcombe 1998, beside the interval without pairing)",
+            result.decoder_comparisons, _comparison_columns()))
     if result.notes:
         sections.append("Notes\n=====\n" + "\n".join(f"- {n}" for n in result.notes))
     return "\n\n".join(sections)

@@ -21,6 +21,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+from codebench.analysis.comparisons import DecoderComparison
 from codebench.analysis.families import FamilyId
 from codebench.analysis.measured import MeasuredComparison
 from codebench.analysis.records import (
@@ -86,6 +87,8 @@ class AnalysisResult:
     general_notes: tuple[str, ...] = ()
     #: Measured points beside their simulated twins (``codebench lab decode``); in the JSON only when any.
     measured: tuple[MeasuredComparison, ...] = ()
+    #: Decoders of one physical point compared on the same shots; in the JSON only when any.
+    decoder_comparisons: tuple[DecoderComparison, ...] = ()
 
     @property
     def thresholds(self) -> tuple[ThresholdEstimate, ...]:
@@ -136,7 +139,9 @@ class AnalysisResult:
             "notes": list(self.notes),
             "settings": self.settings.to_json(),
             "per_round_crossings": [r.to_json() for r in self.per_round_crossings],
-        } | ({"measured": [r.to_json() for r in self.measured]} if self.measured else {})
+        } | ({"measured": [r.to_json() for r in self.measured]} if self.measured else {}) | (
+            {"decoder_comparisons": [r.to_json() for r in self.decoder_comparisons]}
+            if self.decoder_comparisons else {})
 
 
 __all__ = ["CONFIDENCE", "AnalysisResult", "AnalysisSettings", "FamilyAnalysis"]

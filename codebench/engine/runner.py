@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 import signal
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from types import FrameType
 from typing import Any, Callable, Iterator, Sequence
 
@@ -48,6 +48,11 @@ class PointRun:
     model: bytes | None = None
     #: The study the point belongs to (for the live view).
     study: str = ""
+    #: The point's random stream (:meth:`Point.sample_key`): shared by its other decoders.
+    stream: str = ""
+
+    def __post_init__(self) -> None:
+        self.stream = self.stored.point.sample_key(self.seed)
 
     def refresh(self, stopping: Stopping) -> None:
         self.tally = tally(self.sizes, self.batches, stopping)
@@ -87,7 +92,7 @@ class PointRun:
             params=point.params(),
             batch_index=index,
             shots=self.sizes[index],
-            seed=batch_seed(self.seed, self.stored.key, index, self.sizes[index]),
+            seed=batch_seed(self.seed, self.stream, index, self.sizes[index]),
             model=self.packed_model() if ship else None,
         )
 
@@ -184,14 +189,15 @@ def execute(plan: RunPlan, store: Store, executor: Executor, progress: Progress 
             if stop_when is not None and stop_when():
                 break
             _fill(runs, plan.stopping, executor, ship)
-            for result in executor.completed(timeout=0.5):
-                run = by_key[result.point_key]
-                run.in_flight.discard(result.batch_index)
-                store.add_batch(result)
-                run.batches[result.batch_index] = result
-                run.refresh(plan.stopping)
-                if progress is not None:
-                    progress.record(result.shots, result.failures, result.seconds)
+            for finished in executor.completed(timeout=0.5):
+                for result in (finished, *finished.partners):
+                    run = by_key[result.point_key]
+                    run.in_flight.discard(result.batch_index)
+                    store.add_batch(result)
+                    run.batches[result.batch_index] = result
+                    run.refresh(plan.stopping)
+                    if progress is not None:
+                        progress.record(result.shots, result.failures, result.seconds)
             if progress is not None:
                 progress.update([r.status() for r in runs], note=executor.note())
     except (KeyboardInterrupt, Interrupted):
@@ -211,12 +217,34 @@ def _fill(runs: list[PointRun], stopping: Stopping, executor: Executor, ship: bo
 
 
 def _candidates(runs: list[PointRun], stopping: Stopping, executor: Executor, ship: bool) -> Iterator[BatchTask]:
+    siblings: dict[str, list[PointRun]] = {}
+    for run in runs:
+        siblings.setdefault(run.stream, []).append(run)
     for run in runs:
         while executor.in_flight() < executor.capacity:
             task = run.next_task(stopping, ship)
             if task is None:
                 break
             run.in_flight.add(task.batch_index)
-            yield task
+            yield _with_partners(task, run, siblings[run.stream], stopping, ship)
         if executor.in_flight() >= executor.capacity:
             return
+
+
+def _with_partners(task: BatchTask, run: PointRun, siblings: list[PointRun], stopping: Stopping,
+                   ship: bool) -> BatchTask:
+    """``task`` joined by the same batch of the point's other decoders that want it now.
+
+    Their batch has the same seed and shots, so it is sampled once and decoded by each; a decoder
+    that does not want the batch (finished, or holding back) is left out, and its counts are
+    the same either way.
+    """
+    partners = []
+    for other in siblings:
+        if other is run:
+            continue
+        candidate = other.next_task(stopping, ship)
+        if candidate is not None and candidate.batch_index == task.batch_index and candidate.seed == task.seed:
+            other.in_flight.add(candidate.batch_index)
+            partners.append(candidate)
+    return replace(task, partners=tuple(partners)) if partners else task

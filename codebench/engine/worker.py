@@ -13,11 +13,11 @@ import platform
 import threading
 import time
 from collections import OrderedDict
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import lru_cache
 from importlib import metadata
 from pathlib import Path
-from typing import Any
+from typing import Any, Iterator
 
 import numpy as np
 import stim
@@ -28,7 +28,7 @@ from codebench.decoders.plugins import is_spec
 from codebench.engine.fault_sampling import FaultTable, fault_shots, sample_fault_sets
 from codebench.engine.models import circuit_of, model_of, unpack_model
 from codebench.errors import DecoderError
-from codebench.records import BatchResult, BatchTask, Point
+from codebench.records import BatchResult, BatchTask, Point, pack_failed
 
 #: Compiled points a worker keeps (least recently used evicted first).
 CACHE_SIZE = 8
@@ -64,10 +64,11 @@ _cache = _ThreadCache()
 
 
 def batch_seed(sweep_seed: int, point_key: str, batch_index: int, shots: int) -> int:
-    """Seed of one batch, derived from the sweep seed, the point and the batch.
+    """Seed of one batch, derived from the sweep seed, the point's stream and the batch.
 
-    The batch size is part of it, so a batch re-cut after a budget change
-    never reuses the random stream of a stored batch.
+    ``point_key``: the point's :meth:`~codebench.records.Point.sample_key` (the same for every
+    decoder of one physical point). The batch size is part of it, so a batch re-cut after a budget
+    change never reuses the random stream of a stored batch.
     """
     text = f"{sweep_seed}:{point_key}:{batch_index}:{shots}"
     return int.from_bytes(hashlib.sha256(text.encode()).digest()[:8], "little") >> 1
@@ -138,9 +139,15 @@ def compiled(point_key: str, params: dict[str, Any], model: bytes | None = None)
     return entry
 
 
+def failed_shots(predicted: np.ndarray, actual: np.ndarray) -> np.ndarray:
+    """Per shot: whether any bit-packed observable prediction differs from the truth."""
+    failed: np.ndarray = np.any(predicted != actual, axis=1)
+    return failed
+
+
 def count_failures(predicted: np.ndarray, actual: np.ndarray) -> int:
     """Shots where any bit-packed observable prediction differs from the truth (both checked alike)."""
-    return int(np.count_nonzero(np.any(predicted != actual, axis=1)))
+    return int(np.count_nonzero(failed_shots(predicted, actual)))
 
 
 def decode(point: CompiledPoint, detectors: np.ndarray) -> np.ndarray:
@@ -198,50 +205,56 @@ def _warm_up_sampler() -> None:
 
 
 def run_batch(task: BatchTask) -> BatchResult:
-    """Sample and decode one batch; pure function of the task."""
+    """Sample one batch and decode it with the task's decoder and its partners'; pure function of the task.
+
+    Partners are the same physical point under other decoders with the same seed and shots
+    (:attr:`BatchTask.partners`): their shots are sampled once and decoded by each, and each result
+    is exactly what the partner's batch would have given alone.
+    """
     if not _warmed:
         _warm_up_sampler()
-    point = compiled(task.point_key, task.params, task.model)
-    if task.faults is not None:
-        return _run_fault_batch(task, point, task.faults)
+    tasks = (task, *task.partners)
+    points = [compiled(t.point_key, t.params, t.model) for t in tasks]
     start = time.perf_counter()
-    sampler = point.circuit.compile_detector_sampler(seed=task.seed)
-    failures = 0
-    decode_seconds = 0.0
-    # One seeded sampler per batch, drawn in chunks: stim reuses its buffers from chunk
-    # to chunk (a fresh large allocation per call was measurably slower), and a batch's
-    # memory stays bounded by the chunk, not the batch.
-    for chunk in _chunks(task.shots, chunk_shots(point.num_detectors, point.circuit.num_measurements)):
-        detectors, observables = sampler.sample(chunk, separate_observables=True, bit_packed=True)
-        decode_start = time.perf_counter()
-        predicted = decode(point, detectors)
-        decode_seconds += time.perf_counter() - decode_start
-        failures += count_failures(predicted, observables)
-    return BatchResult(
-        point_key=task.point_key,
-        batch_index=task.batch_index,
-        shots=task.shots,
-        failures=failures,
-        seconds=time.perf_counter() - start,
-        decode_seconds=decode_seconds,
-    )
+    failed: list[list[np.ndarray]] = [[] for _ in tasks]
+    decode_seconds = [0.0] * len(tasks)
+    for detectors, observables in _shots(task, points[0]):
+        for i, point in enumerate(points):
+            decode_start = time.perf_counter()
+            predicted = decode(point, detectors)
+            decode_seconds[i] += time.perf_counter() - decode_start
+            failed[i].append(failed_shots(predicted, observables))
+    # Sampling is shared: each result carries an equal part of it beside its own decoding.
+    sampling = (time.perf_counter() - start - sum(decode_seconds)) / len(tasks)
+    results = [_result(t, np.concatenate(f) if f else np.zeros(0, dtype=bool), d, sampling)
+               for t, f, d in zip(tasks, failed, decode_seconds)]
+    return replace(results[0], partners=tuple(results[1:]))
 
 
-def _run_fault_batch(task: BatchTask, point: CompiledPoint, faults: int) -> BatchResult:
-    """A batch of shots with exactly ``faults`` faults each, decoded like any other batch."""
-    start = time.perf_counter()
-    table = point.faults
-    rng = np.random.default_rng(task.seed)
-    failures = 0
-    decode_seconds = 0.0
-    for chunk in _chunks(task.shots, chunk_shots(point.num_detectors, point.circuit.num_measurements)):
-        detectors, observables = fault_shots(table, sample_fault_sets(table.odds, faults, chunk, rng))
-        decode_start = time.perf_counter()
-        predicted = decode(point, detectors)
-        decode_seconds += time.perf_counter() - decode_start
-        failures += count_failures(predicted, observables)
+def _result(task: BatchTask, failed: np.ndarray, decode_seconds: float, sampling: float = 0.0) -> BatchResult:
     return BatchResult(point_key=task.point_key, batch_index=task.batch_index, shots=task.shots,
-                       failures=failures, seconds=time.perf_counter() - start, decode_seconds=decode_seconds)
+                       failures=int(np.count_nonzero(failed)), seconds=decode_seconds + sampling,
+                       decode_seconds=decode_seconds, seed=task.seed, failed=pack_failed(failed))
+
+
+def _shots(task: BatchTask, point: CompiledPoint) -> Iterator[tuple[np.ndarray, np.ndarray]]:
+    """The batch's bit-packed detection events and observables, chunk by chunk.
+
+    Sampled shots come from one seeded sampler drawn in chunks: stim reuses its buffers from chunk
+    to chunk (a fresh large allocation per call was measurably slower), and a batch's memory stays
+    bounded by the chunk, not the batch. With ``task.faults`` set, every shot has exactly that many
+    faults of the detector error model instead.
+    """
+    chunks = _chunks(task.shots, chunk_shots(point.num_detectors, point.circuit.num_measurements))
+    if task.faults is not None:
+        table = point.faults
+        rng = np.random.default_rng(task.seed)
+        for chunk in chunks:
+            yield fault_shots(table, sample_fault_sets(table.odds, task.faults, chunk, rng))
+        return
+    sampler = point.circuit.compile_detector_sampler(seed=task.seed)
+    for chunk in chunks:
+        yield sampler.sample(chunk, separate_observables=True, bit_packed=True)
 
 
 #: Packages whose versions decide the counts of a batch.

@@ -11,7 +11,8 @@ import pandas as pd
 from codebench.files import write_atomically
 from codebench.noise import NOISE_MODELS
 from codebench.records import BatchSchedule, Point
-from codebench.results.store import UNLISTED, MeasuredResult, Store
+from codebench.results.pairing import paired_counts
+from codebench.results.store import UNLISTED, MeasuredResult, Store, StoredPoint
 from codebench.results.tally import tally, usable_batches
 from codebench.stats import binomial_interval, per_round
 
@@ -25,6 +26,9 @@ EXTRA_COLUMNS = [
     "decode_seconds", "decode_us_per_round", "batches", "complete", "interval", "noise_options", "decoder_options",
     "key", "source",
 ]
+#: The key of ``frame.attrs`` holding the decoders' paired counts (:class:`~codebench.results.pairing.PairedCounts`
+#: as JSON records) of a results table.
+PAIRS_ATTR = "decoder_pairs"
 #: Values of the ``source`` column: sampled by codebench, or decoded from records measured on a device.
 SOURCES = ("simulated", "measured")
 #: Added to the decoder column of a measured point decoded with weights learned from its data.
@@ -78,9 +82,19 @@ def results_frame(store: Store, interval: str = "wilson", unlisted: bool = False
     to compare with the duration of a syndrome round.
     """
     measured = store.measured()
-    rows = _simulated_rows(store, interval, unlisted) if store.has_sweep() or not measured else []
+    simulated = store.has_sweep() or not measured
+    members = _members(store, unlisted) if simulated else []
+    rows = _simulated_rows(store, members, interval) if simulated else []
     rows.extend(_measured_row(result, interval) for result in measured)
-    return pd.DataFrame(rows, columns=COLUMNS + EXTRA_COLUMNS)
+    frame = pd.DataFrame(rows, columns=COLUMNS + EXTRA_COLUMNS)
+    # Decoders of one physical point decoded the same shots: their shot-by-shot counts travel with
+    # the table (plain records, so pandas can compare and copy them), for analyze and the figures.
+    frame.attrs[PAIRS_ATTR] = [counts.to_json() for counts in paired_counts(store, members)] if members else []
+    return frame
+
+
+def _members(store: Store, unlisted: bool) -> list[tuple[StoredPoint, str]]:
+    return store.members() + ([(point, UNLISTED) for point in store.unlisted()] if unlisted else [])
 
 
 def _rates(point: Point, failures: int, shots: int, interval: str) -> dict[str, float]:
@@ -97,11 +111,10 @@ def _identity_columns(study: str, point: Point) -> dict[str, object]:
             "basis": point.basis, "noise": point.noise, "p": point.p, "decoder": point.decoder}
 
 
-def _simulated_rows(store: Store, interval: str, unlisted: bool = False) -> list[dict[str, object]]:
+def _simulated_rows(store: Store, members: list[tuple[StoredPoint, str]], interval: str) -> list[dict[str, object]]:
     stopping = store.stopping()
     stored = store.all_batches()
     rows: list[dict[str, object]] = []
-    members = store.members() + ([(point, UNLISTED) for point in store.unlisted()] if unlisted else [])
     for member, study in members:
         point = member.point
         sizes = BatchSchedule(stopping.shot_budget, member.batch_cap)

@@ -26,7 +26,8 @@ from codebench.records import BatchResult, Point, Stopping
 
 #: Written into the SQLite header so a foreign file is recognised ("CBNC").
 APPLICATION_ID = 0x43424E43
-SCHEMA_VERSION = 1
+#: 2: batches carry their seed and which of their shots failed (paired decoder comparisons).
+SCHEMA_VERSION = 2
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -49,6 +50,8 @@ CREATE TABLE IF NOT EXISTS batches (
     failures INTEGER NOT NULL,
     seconds REAL NOT NULL,
     decode_seconds REAL NOT NULL,
+    seed INTEGER,
+    failed BLOB,
     PRIMARY KEY (key, batch_index, shots)
 );
 CREATE TABLE IF NOT EXISTS measured (
@@ -144,6 +147,7 @@ class Store:
             self._db.execute("PRAGMA journal_mode=WAL")
             self._db.execute("PRAGMA synchronous=NORMAL")
             self._db.executescript(_SCHEMA)
+            self._upgrade()
         except sqlite3.OperationalError as exc:  # the file is fine; the disk is full, or not writable
             self._db.close()
             raise OutputError(f"cannot write the results store '{self.path}': {exc}; free some space (or "
@@ -183,6 +187,22 @@ class Store:
             self._db.close()
             raise StoreError(f"'{self.path}' was written by a newer codebench (store schema {version}, "
                              f"this one reads {SCHEMA_VERSION}); left untouched.")
+
+    def _upgrade(self) -> None:
+        """Bring a store of an older schema up to this one (its batches keep their counts)."""
+        columns = {row[1] for row in self._db.execute("PRAGMA table_info(batches)")}
+        with self._transaction():
+            for name, kind in (("seed", "INTEGER"), ("failed", "BLOB")):
+                if name not in columns:
+                    self._db.execute(f"ALTER TABLE batches ADD COLUMN {name} {kind}")
+            self._db.execute(f"PRAGMA user_version={SCHEMA_VERSION}")
+
+    def _batch_columns(self, failed: bool = True) -> str:
+        """The batch columns to read (a read-only store of schema 1 has no seed or failure bits)."""
+        columns = {row[1] for row in self._db.execute("PRAGMA table_info(batches)")}
+        wanted = ("seed", "failed") if failed else ("seed",)
+        extra = [name if name in columns else "NULL" for name in wanted] + ([] if failed else ["NULL"])
+        return ", ".join(["key, batch_index, shots, failures, seconds, decode_seconds", *extra])
 
     def close(self) -> None:
         self._db.close()
@@ -224,9 +244,10 @@ class Store:
         """Record one finished batch in its own transaction (a repeat is ignored)."""
         with self._transaction():
             self._db.execute(
-                "INSERT OR IGNORE INTO batches VALUES (?, ?, ?, ?, ?, ?)",
+                "INSERT OR IGNORE INTO batches (key, batch_index, shots, failures, seconds, decode_seconds, seed, "
+                "failed) VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
                 (result.point_key, result.batch_index, result.shots, result.failures,
-                 result.seconds, result.decode_seconds),
+                 result.seconds, result.decode_seconds, result.seed, result.failed),
             )
 
     def _transaction(self) -> _Transaction:
@@ -299,17 +320,14 @@ class Store:
                 for key, params, qubits, detectors, cap in rows]
 
     def batches(self, key: str) -> Iterator[BatchResult]:
-        for row in self._db.execute(
-            "SELECT key, batch_index, shots, failures, seconds, decode_seconds FROM batches WHERE key = ?",
-            (key,),
-        ):
+        for row in self._db.execute(f"SELECT {self._batch_columns()} FROM batches WHERE key = ?", (key,)):
             yield BatchResult(*row)
 
-    def all_batches(self) -> dict[str, list[BatchResult]]:
+    def all_batches(self, failed: bool = False) -> dict[str, list[BatchResult]]:
+        """Every stored batch by point key; ``failed``: with their failure bits (costlier to read)."""
+        columns = self._batch_columns(failed)
         out: dict[str, list[BatchResult]] = {}
-        for row in self._db.execute(
-            "SELECT key, batch_index, shots, failures, seconds, decode_seconds FROM batches"
-        ):
+        for row in self._db.execute(f"SELECT {columns} FROM batches"):
             out.setdefault(row[0], []).append(BatchResult(*row))
         return out
 

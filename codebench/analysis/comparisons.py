@@ -1,0 +1,107 @@
+"""Two decoders compared on the same shots: the paired difference of their failure rates.
+
+Decoders of one physical point decode identical shots (:mod:`codebench.results.pairing`), so their
+difference is measured shot by shot: only the shots where exactly one of them fails carry
+information about it. The interval is Newcombe's paired hybrid score interval
+(:func:`codebench.stats.paired_difference_interval`); beside it, the interval the same counts would
+give had each decoder had shots of its own (same sizes, phi = 0), to show what the pairing buys,
+and the exact McNemar test of "both fail equally often".
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Iterable, Mapping
+
+import pandas as pd
+
+from codebench.results.export import PAIRS_ATTR
+from codebench.stats import exact_mcnemar_p, paired_difference_interval, per_round
+
+
+@dataclass(frozen=True)
+class DecoderComparison:
+    """``first`` minus ``second``: difference of whole-experiment failure rates on ``shots`` shared shots."""
+
+    study: str
+    code: str
+    distance: int
+    rounds: int
+    basis: str
+    noise: str
+    p: float
+    first: str
+    second: str
+    shots: int
+    both: int
+    first_only: int
+    second_only: int
+    difference: float
+    low: float
+    high: float
+    unpaired_low: float
+    unpaired_high: float
+    mcnemar_p: float
+
+    @property
+    def first_failures(self) -> int:
+        return self.both + self.first_only
+
+    @property
+    def second_failures(self) -> int:
+        return self.both + self.second_only
+
+    @property
+    def narrowing(self) -> float | None:
+        """Width of the unpaired interval over the paired one (how much narrower the pairing makes it)."""
+        width = self.high - self.low
+        return (self.unpaired_high - self.unpaired_low) / width if width > 0 else None
+
+    def per_round_rates(self) -> tuple[float, float]:
+        """Both decoders' per-round logical error on the shared shots."""
+        if self.shots <= 0:
+            return math.nan, math.nan
+        return (per_round(self.first_failures / self.shots, self.rounds),
+                per_round(self.second_failures / self.shots, self.rounds))
+
+    def to_json(self) -> dict[str, Any]:
+        first_round, second_round = self.per_round_rates()
+        return {
+            "study": self.study, "code": self.code, "distance": self.distance, "rounds": self.rounds,
+            "basis": self.basis, "noise": self.noise, "p": self.p, "first": self.first, "second": self.second,
+            "shots": self.shots, "first_failures": self.first_failures, "second_failures": self.second_failures,
+            "both": self.both, "first_only": self.first_only, "second_only": self.second_only,
+            "quantity": "failure probability of the whole memory experiment, first minus second",
+            "difference": _finite(self.difference), "low": self.low, "high": self.high,
+            "unpaired_low": self.unpaired_low, "unpaired_high": self.unpaired_high,
+            "narrowing": self.narrowing, "mcnemar_p": self.mcnemar_p,
+            "first_per_round": _finite(first_round), "second_per_round": _finite(second_round),
+            "method": "Newcombe paired hybrid score (method 10), 95%",
+        }
+
+
+def _finite(value: float) -> float | None:
+    return value if math.isfinite(value) else None
+
+
+def compare_decoders(records: Iterable[Mapping[str, Any]]) -> tuple[DecoderComparison, ...]:
+    """One comparison per paired-count record (:class:`~codebench.results.pairing.PairedCounts` as JSON)."""
+    out = []
+    for r in records:
+        shots, both, first_only, second_only = (int(r[k]) for k in ("shots", "both", "first_only", "second_only"))
+        neither = shots - both - first_only - second_only
+        difference, low, high = paired_difference_interval(both, first_only, second_only, neither)
+        _, unpaired_low, unpaired_high = paired_difference_interval(both, first_only, second_only, neither,
+                                                                    correlated=False)
+        out.append(DecoderComparison(
+            str(r["study"]), str(r["code"]), int(r["distance"]), int(r["rounds"]), str(r["basis"]),
+            str(r["noise"]), float(r["p"]), str(r["first"]), str(r["second"]), shots, both, first_only,
+            second_only, difference, low, high, unpaired_low, unpaired_high,
+            exact_mcnemar_p(first_only, second_only)))
+    return tuple(out)
+
+
+def decoder_comparisons(frame: pd.DataFrame) -> tuple[DecoderComparison, ...]:
+    """The comparisons of a results table (its paired counts travel in ``frame.attrs``)."""
+    return compare_decoders(frame.attrs.get(PAIRS_ATTR, ()))

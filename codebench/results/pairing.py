@@ -1,0 +1,118 @@
+"""Decoders compared shot by shot: the paired counts of two decoders of one physical point.
+
+Every decoder of a physical point (same code, distance, rounds, basis, noise and rate) draws its
+batches from one random stream (:meth:`~codebench.records.Point.sample_key`), so batch i of each
+holds identical shots, and each stored batch says which of its shots failed. Two decoders are
+compared over the batches both count (the shorter of their two counted prefixes: each decoder stops
+by its own rule), batch by batch where the seeds agree: the shots both failed, only the first
+failed, only the second failed. Batches stored before batches kept their failure bits (or drawn
+from another stream) are left out of the pairing and the shots paired say so.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Iterable, Sequence
+from dataclasses import asdict, dataclass
+from itertools import combinations
+
+import numpy as np
+
+from codebench.records import BatchResult, BatchSchedule, Stopping, unpack_failed
+from codebench.results.store import Store, StoredPoint
+from codebench.results.tally import tally, usable_batches
+
+
+@dataclass(frozen=True)
+class PairedCounts:
+    """Two decoders of one study and physical point over the shots both decoded.
+
+    ``first_only``: shots only the first decoder failed; ``second_only``: only the second;
+    ``both``: shots both failed. ``first_failures - second_failures = first_only - second_only``.
+    """
+
+    study: str
+    code: str
+    distance: int
+    rounds: int
+    basis: str
+    noise: str
+    p: float
+    first: str
+    second: str
+    shots: int
+    both: int
+    first_only: int
+    second_only: int
+
+    @property
+    def first_failures(self) -> int:
+        return self.both + self.first_only
+
+    @property
+    def second_failures(self) -> int:
+        return self.both + self.second_only
+
+    def to_json(self) -> dict[str, object]:
+        return asdict(self)
+
+
+def _physical(member: StoredPoint) -> str:
+    """The point without its decoder: what decoders of one comparison share."""
+    params = member.point.params()
+    params.pop("decoder")
+    params.pop("decoder_options")
+    return json.dumps(params, sort_keys=True)
+
+
+def _decoder_name(member: StoredPoint) -> str:
+    point = member.point
+    if not point.decoder_options:
+        return point.decoder
+    options = ",".join(f"{k}={v}" for k, v in point.decoder_options)
+    return f"{point.decoder}({options})"
+
+
+def comparable_groups(members: Sequence[tuple[StoredPoint, str]]) -> list[list[StoredPoint]]:
+    """Points of one study that differ only in their decoder, in grid order (groups of two or more)."""
+    groups: dict[tuple[str, str], list[StoredPoint]] = {}
+    for member, study in members:
+        groups.setdefault((study, _physical(member)), []).append(member)
+    return [group for group in groups.values() if len(group) > 1]
+
+
+def paired_counts(store: Store, members: Sequence[tuple[StoredPoint, str]]) -> list[PairedCounts]:
+    """The paired counts of every two decoders of one study and physical point (first in grid order first)."""
+    stopping = store.stopping()
+    study_of = {member.key: study for member, study in members}
+    out: list[PairedCounts] = []
+    for group in comparable_groups(members):
+        counted = {member.key: _counted_batches(member, store.batches(member.key), stopping) for member in group}
+        for first, second in combinations(group, 2):
+            point = first.point
+            shots, both, first_only, second_only = _pair(counted[first.key], counted[second.key])
+            out.append(PairedCounts(study_of[first.key], point.code, point.distance, point.rounds, point.basis,
+                                    point.noise, point.p, _decoder_name(first), _decoder_name(second), shots,
+                                    both, first_only, second_only))
+    return out
+
+
+def _counted_batches(member: StoredPoint, batches: Iterable[BatchResult], stopping: Stopping) -> list[BatchResult]:
+    """The batches the point's count is made of, in batch order."""
+    sizes = BatchSchedule(stopping.shot_budget, member.batch_cap)
+    usable = usable_batches(sizes, batches)
+    return [usable[i] for i in range(tally(sizes, usable, stopping).batches)]
+
+
+def _pair(first: list[BatchResult], second: list[BatchResult]) -> tuple[int, int, int, int]:
+    """Shots, both failed, first only, second only over the batches both count with equal seeds."""
+    shots = both = first_only = second_only = 0
+    for a, b in zip(first, second):
+        if a.seed is None or a.seed != b.seed or a.shots != b.shots or a.failed is None or b.failed is None:
+            continue
+        fail_a, fail_b = unpack_failed(a.failed, a.shots), unpack_failed(b.failed, b.shots)
+        shots += a.shots
+        both += int(np.count_nonzero(fail_a & fail_b))
+        first_only += int(np.count_nonzero(fail_a & ~fail_b))
+        second_only += int(np.count_nonzero(~fail_a & fail_b))
+    return shots, both, first_only, second_only
