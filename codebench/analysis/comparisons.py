@@ -102,6 +102,24 @@ def compare_decoders(records: Iterable[Mapping[str, Any]]) -> tuple[DecoderCompa
     return tuple(out)
 
 
+_ROW = ("study", "code", "distance", "rounds", "basis", "noise", "p")
+
+
 def decoder_comparisons(frame: pd.DataFrame) -> tuple[DecoderComparison, ...]:
-    """The comparisons of a results table (its paired counts travel in ``frame.attrs``)."""
-    return compare_decoders(frame.attrs.get(PAIRS_ATTR, ()))
+    """The comparisons of a results table (its paired counts travel in ``frame.attrs``).
+
+    Only pairs whose two rows are in ``frame``: a table cut down (``frame[frame.distance == 3]``)
+    keeps pandas' attrs, not its comparisons of rows it no longer holds.
+    """
+    records = frame.attrs.get(PAIRS_ATTR, ())
+    if not records or frame.empty:
+        return ()
+    present = {tuple(_plain(row[name]) for name in (*_ROW, "decoder")) for _, row in frame.iterrows()}
+    kept = [r for r in records
+            if all(tuple(_plain(r[name]) for name in _ROW) + (r[which],) in present for which in ("first", "second"))]
+    return compare_decoders(kept)
+
+
+def _plain(value: Any) -> Any:
+    """Row values and record values alike (numpy numbers as Python numbers)."""
+    return value.item() if hasattr(value, "item") else value

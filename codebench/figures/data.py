@@ -58,9 +58,10 @@ def plain_analysis(analysis: Any) -> dict[str, Any]:
     for key in SECTIONS:
         out[key] = [_plain_record(record) for record in part(key) or []]
     out["notes"] = [str(note) for note in part("notes") or []]
-    measured = part("measured")
-    if measured:
-        out["measured"] = [_plain(record) for record in measured]
+    for optional in ("measured", "decoder_comparisons"):
+        found = part(optional)
+        if found:
+            out[optional] = [_plain(record) for record in found]
     settings = _plain(part("settings"))
     out["settings"] = settings if isinstance(settings, dict) else {}
     return out

@@ -9,7 +9,7 @@ import matplotlib
 import pandas as pd
 
 from codebench.analysis.families import group_families
-from codebench.figures import decoders, measured, per_round, suppression
+from codebench.figures import decoders, measured, paired, per_round, suppression
 from codebench.figures.canvas import FigureFile, FigurePlan, save
 from codebench.figures.data import plain_analysis
 from codebench.figures.manifest import Manifest, plan_digest
@@ -19,7 +19,7 @@ from codebench.files import make_folder
 FIGURES_DIR = "figures"
 #: File-name prefixes this package owns in ``DIR/figures`` (stale files with them are removed).
 PREFIXES = tuple(f"{kind}__" for kind in (per_round.KIND, per_round.WHOLE_KIND, suppression.KIND, decoders.KIND,
-                                          measured.KIND))
+                                          measured.KIND, paired.KIND))
 _NEEDED = {"code", "basis", "noise", "decoder", "distance", "rounds", "p", "shots"}
 
 
@@ -50,6 +50,7 @@ def plan_figures(frame: pd.DataFrame, analysis: Any) -> list[FigurePlan[Any]]:
         comparison = decoders.plan(group)
         if comparison is not None:
             plans.append(comparison)
+    plans += paired.plans(records)
     if has_rows:
         plans += measured.plans(frame)
     return plans

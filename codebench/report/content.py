@@ -30,6 +30,7 @@ from codebench.report.blocks import (
     with_interval,
 )
 from codebench.report.cautions import FEW_FAILURES, cautions
+from codebench.report.comparisons import comparison_table
 from codebench.report.run import (
     VERSION_KEYS,
     RunInfo,
@@ -240,6 +241,8 @@ def fit_tables(analysis: dict[str, Any]) -> list[Table]:
     tables.append(projections)
     if records("measured"):
         tables.append(measured_table(records("measured")))
+    if records("decoder_comparisons"):
+        tables.append(comparison_table(records("decoder_comparisons")))
     return tables
 
 
