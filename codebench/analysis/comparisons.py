@@ -102,7 +102,7 @@ def compare_decoders(records: Iterable[Mapping[str, Any]]) -> tuple[DecoderCompa
     return tuple(out)
 
 
-_ROW = ("study", "code", "distance", "rounds", "basis", "noise", "p")
+_ROW = ("code", "distance", "rounds", "basis", "noise", "p")
 
 
 def decoder_comparisons(frame: pd.DataFrame) -> tuple[DecoderComparison, ...]:

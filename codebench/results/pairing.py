@@ -25,7 +25,9 @@ from codebench.results.tally import tally, usable_batches
 
 @dataclass(frozen=True)
 class PairedCounts:
-    """Two decoders of one study and physical point over the shots both decoded.
+    """Two decoders of one physical point over the shots both decoded.
+
+    ``study``: the study of both rows, or ``"first + second"`` when the rows belong to two studies.
 
     ``first_only``: shots only the first decoder failed; ``second_only``: only the second;
     ``both``: shots both failed. ``first_failures - second_failures = first_only - second_only``.
@@ -74,15 +76,23 @@ def _decoder_name(member: StoredPoint) -> str:
 
 
 def comparable_groups(members: Sequence[tuple[StoredPoint, str]]) -> list[list[StoredPoint]]:
-    """Points of one study that differ only in their decoder, in grid order (groups of two or more)."""
-    groups: dict[tuple[str, str], list[StoredPoint]] = {}
-    for member, study in members:
-        groups.setdefault((study, _physical(member)), []).append(member)
+    """Points that differ only in their decoder, in grid order (groups of two or more).
+
+    Across studies too: a point two studies share is listed once, under the first, so a study that
+    adds a decoder to points of an earlier study compares with the earlier study's rows.
+    """
+    groups: dict[str, list[StoredPoint]] = {}
+    for member, _ in members:
+        groups.setdefault(_physical(member), []).append(member)
     return [group for group in groups.values() if len(group) > 1]
 
 
+def _studies(first: str, second: str) -> str:
+    return first if first == second else f"{first} + {second}"
+
+
 def paired_counts(store: Store, members: Sequence[tuple[StoredPoint, str]]) -> list[PairedCounts]:
-    """The paired counts of every two decoders of one study and physical point (first in grid order first)."""
+    """The paired counts of every two decoders of one physical point (first in grid order first)."""
     stopping = store.stopping()
     study_of = {member.key: study for member, study in members}
     out: list[PairedCounts] = []
@@ -91,7 +101,7 @@ def paired_counts(store: Store, members: Sequence[tuple[StoredPoint, str]]) -> l
         for first, second in combinations(group, 2):
             point = first.point
             shots, both, first_only, second_only = _pair(counted[first.key], counted[second.key])
-            out.append(PairedCounts(study_of[first.key], point.code, point.distance, point.rounds, point.basis,
+            out.append(PairedCounts(_studies(study_of[first.key], study_of[second.key]), point.code, point.distance, point.rounds, point.basis,
                                     point.noise, point.p, _decoder_name(first), _decoder_name(second), shots,
                                     both, first_only, second_only))
     return out
