@@ -7,6 +7,7 @@ message template as every other value (:func:`codebench.errors.not_allowed`).
 
 from __future__ import annotations
 
+import json
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -125,3 +126,37 @@ def resolve_options(specs: Mapping[str, OptionSpec], given: Mapping[str, Any], a
                                    f"a declared option of {owner} ({allowed})"))
     return {name: spec.check(given[name], f"{at}.{name}" if at else name, owner) if name in given else spec.default
             for name, spec in specs.items()}
+
+
+def options_text(options: Mapping[str, Any]) -> str:
+    """Options as a person reads them: ``name=value`` pairs sorted by name, joined by ``"; "``.
+
+    ``""`` when there are none. Values are written with ``str`` (a device document by its name and
+    digest, as its noise model shows it).
+
+    >>> options_text({"osd_order": 2, "bp_method": "minimum_sum"})
+    'bp_method=minimum_sum; osd_order=2'
+    >>> parse_options_text(options_text({"device": "chip.toml@1a2b", "scale_t1": 0.5}))
+    {'device': 'chip.toml@1a2b', 'scale_t1': '0.5'}
+    """
+    return "; ".join(f"{name}={options[name]}" for name in sorted(options))
+
+
+def parse_options_text(text: str) -> dict[str, str]:
+    """The options of :func:`options_text` back as text values (``{}`` for ``""``).
+
+    A JSON object (how tables written before this format held options) reads too.
+    """
+    text = str(text)
+    if text.startswith("{"):
+        try:
+            found = json.loads(text)
+        except ValueError:
+            found = None
+        if isinstance(found, dict):
+            return {str(k): str(v) for k, v in found.items()}
+    out: dict[str, str] = {}
+    for pair in str(text).split("; ") if text else []:
+        name, _, value = pair.partition("=")
+        out[name] = value
+    return out

@@ -14,7 +14,6 @@ Monte Carlo checks use fixed seeds and 99.9% intervals.
 
 from __future__ import annotations
 
-import json
 import math
 import pickle
 from pathlib import Path
@@ -348,7 +347,7 @@ def test_plugin_decoder_through_run_sweep(tmp_path: Path, workers: int) -> None:
              "decoders": [PLUGIN, "mwpm"], "decoder_options": {PLUGIN: {"min_probability": 0.01}}}
     frame = sweep(tmp_path, f"plugin{workers}", [study], shots=40_000, seed=3, workers=workers)
     row = frame[frame["decoder"] == PLUGIN].iloc[0]
-    assert json.loads(row["decoder_options"]) == {"min_probability": 0.01}
+    assert row["decoder_options"] == "min_probability=0.01"
     # At code capacity on d = 3 a single-fault lookup corrects every weight-1 error, as minimum-weight
     # decoding does, but predicts no flip for heavier syndromes: at least as many failures as the exact
     # minimum-weight value (99.9% interval), and far fewer than guessing.
@@ -435,11 +434,11 @@ def test_decode_us_per_round_column(tmp_path: Path) -> None:
 def test_speed_table_verdicts() -> None:
     frame = pd.DataFrame([
         {"decoder": "mwpm", "code": "rotated_surface", "noise": "device", "distance": 3, "p": 1.0, "rounds": 3,
-         "shots": 1000, "decode_seconds": 0.0015, "decode_us_per_round": 0.5, "noise_options": "{}", "key": "a"},
+         "shots": 1000, "decode_seconds": 0.0015, "decode_us_per_round": 0.5, "noise_options": "", "point_id": "a"},
         {"decoder": "bposd", "code": "rotated_surface", "noise": "device", "distance": 3, "p": 1.0, "rounds": 3,
-         "shots": 1000, "decode_seconds": 0.03, "decode_us_per_round": 10.0, "noise_options": "{}", "key": "b"},
+         "shots": 1000, "decode_seconds": 0.03, "decode_us_per_round": 10.0, "noise_options": "", "point_id": "b"},
         {"decoder": "mwpm", "code": "repetition", "noise": "si1000", "distance": 5, "p": 0.001, "rounds": 5,
-         "shots": 100, "decode_seconds": 0.001, "decode_us_per_round": 2.0, "noise_options": "{}", "key": "c"},
+         "shots": 100, "decode_seconds": 0.001, "decode_us_per_round": 2.0, "noise_options": "", "point_id": "c"},
     ])
     table = speed_table(frame, {"a": 1.0, "b": 1.25})
     verdicts = {row[0]: row[-1] for row in table.rows}

@@ -414,8 +414,8 @@ def test_failure_target_stops_at_first_batch_that_reaches_it(grid_one: tuple[Pat
     for r in frame.itertuples(index=False):
         assert r.failures >= GRID_TARGET or r.shots == GRID_BUDGET
         assert r.shots <= GRID_BUDGET
-        sizes = batch_sizes(GRID_BUDGET, caps[r.key])
-        assert prefix_counts(rows, r.key, sizes, GRID_BUDGET, GRID_TARGET) == (r.shots, r.failures, r.batches)
+        sizes = batch_sizes(GRID_BUDGET, caps[r.point_id])
+        assert prefix_counts(rows, r.point_id, sizes, GRID_BUDGET, GRID_TARGET) == (r.shots, r.failures, r.batches)
 
 
 @pytest.mark.parametrize("budget", [5000, 12345])
@@ -430,7 +430,7 @@ def test_shot_budget_is_exact_when_failures_are_rare(budget: int, tmp_path: Path
     assert list(frame["shots"]) == [budget, budget]
     assert (frame["failures"] < 1_000_000).all()
     rows = batch_rows(tmp_path / "out" / "results.sqlite")
-    for key in frame["key"]:
+    for key in frame["point_id"]:
         assert sum(s for k, _, s, _ in rows if k == key) == budget
 
 
@@ -451,8 +451,8 @@ def test_relative_precision_stops_when_interval_is_narrow_enough(tmp_path: Path)
         assert (high - low) / 2 <= precision * r.failures / r.shots
         # About (z / precision)^2 failures are needed; far fewer than the failure target.
         assert 0.5 * (Z95 / precision) ** 2 < r.failures < 4 * (Z95 / precision) ** 2
-        sizes = batch_sizes(budget, caps[r.key])
-        assert prefix_counts(rows, r.key, sizes, budget, target, precision) == (r.shots, r.failures, r.batches)
+        sizes = batch_sizes(budget, caps[r.point_id])
+        assert prefix_counts(rows, r.point_id, sizes, budget, target, precision) == (r.shots, r.failures, r.batches)
 
 
 @pytest.mark.parametrize("cap", [1024, 4096, 100_000, 1 << 18])
@@ -508,8 +508,8 @@ def test_raising_the_budget_continues_from_stored_batches(tmp_path: Path) -> Non
     stored = {(k, i, s) for k, i, s, _ in rows_small}
     expected_new = 0
     for r in grown.itertuples(index=False):
-        sizes = batch_sizes(large, caps[r.key])[: r.batches]
-        expected_new += sum((r.key, i, s) not in stored for i, s in enumerate(sizes))
+        sizes = batch_sizes(large, caps[r.point_id])[: r.batches]
+        expected_new += sum((r.point_id, i, s) not in stored for i, s in enumerate(sizes))
     assert len(rows_large) - len(rows_small) == expected_new
     assert expected_new < sum(grown["batches"])  # some stored batches were reused
 
@@ -664,9 +664,13 @@ def test_export_rewrites_the_csv_written_by_sweep(grid_cli: Path, tmp_path: Path
 
 
 def test_results_csv_columns_and_values(grid_cli: Path) -> None:
-    frame = pd.read_csv(grid_cli / "results.csv")
+    frame = pd.read_csv(grid_cli / "results.csv", keep_default_na=False)
     assert set(REQUIRED_COLUMNS) <= set(frame.columns)
     assert list(frame.columns[: len(REQUIRED_COLUMNS)]) == REQUIRED_COLUMNS
+    # Read without decoding anything: options as name=value text, the point's hash last, under our name.
+    assert frame.columns[-1] == "point_id" and "key" not in frame.columns
+    assert not any(str(v).startswith("{") for v in [*frame["noise_options"], *frame["decoder_options"]])
+    assert set(frame["in_sweep_file"].astype(str)) == {"True"}
     assert len(frame) == 8
     for r in frame.itertuples(index=False):
         d, rounds = int(r.distance), int(r.rounds)
@@ -746,5 +750,17 @@ def test_points_a_changed_sweep_file_no_longer_lists_stay_reachable(tmp_path: Pa
     assert main(["export", str(out), "--csv", str(tmp_path / "all.csv"), "--all"]) == 0
     every = pd.read_csv(tmp_path / "all.csv")
     assert len(every) == 4 and sorted(every.loc[every["study"] == "(not in the sweep file)", "p"]) == [0.02, 0.02]
+    # The CSV itself says which rows the current sweep file lists.
+    assert sorted(every.loc[~every["in_sweep_file"], "p"]) == [0.02, 0.02] and every["in_sweep_file"].sum() == 2
     assert main(["analyze", str(out), "--bootstrap", "20"]) == 0
     assert "--all includes them" in capsys.readouterr().err
+
+
+def test_options_in_the_results_table_read_as_name_value_text(tmp_path: Path) -> None:
+    sweep = {"name": "opts", "seed": 2, "stopping": {"shot_budget": 1000},
+             "study": [{"code": "rotated_surface", "distances": [3], "rounds": 1, "noise": "code_capacity",
+                        "p": [0.05], "noise_options": {"data_errors": "depolarize"}, "decoders": ["bposd"],
+                        "decoder_options": {"bposd": {"osd_order": 2}}}]}
+    row = run_sweep(sweep, out=tmp_path, executor=InProcessExecutor(), progress=False).iloc[0]
+    assert row["noise_options"] == "data_errors=depolarize"
+    assert "osd_order=2" in row["decoder_options"].split("; ")

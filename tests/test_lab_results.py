@@ -51,7 +51,7 @@ def test_measured_rows_are_exported_with_their_source(folder: Path) -> None:
     assert list(measured["decoder"]) == ["mwpm", "mwpm (data weights)"]
     assert (measured["shots"] == 6000).all()
     header = (folder / "results.csv").read_text().splitlines()[0].split(",")
-    assert header[-1] == "source"
+    assert "source" in header and header[-1] == "point_id"  # the point hash last, under our name
 
 
 def test_measured_agrees_with_simulated_when_the_device_is_its_model(folder: Path) -> None:
@@ -91,7 +91,7 @@ def test_measured_points_at_two_distances_form_their_own_family(folder: Path) ->
     data source); the simulated family's records read exactly as before (no ``source`` key)."""
     frame = load_results(folder)
     measured = frame[frame["source"] == "measured"]
-    twin = measured.assign(distance=5, key=measured["key"] + "5")
+    twin = measured.assign(distance=5, point_id=measured["point_id"] + "5")
     result = analyze(pd.concat([frame, twin], ignore_index=True), bootstrap=10)
     sources = sorted((f.family.source, f.family.decoder) for f in result.families)
     assert sources == [("measured", "mwpm"), ("measured", "mwpm (data weights)"), ("simulated", "mwpm")]

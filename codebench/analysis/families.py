@@ -35,7 +35,7 @@ def with_source(frame: pd.DataFrame) -> pd.DataFrame:
 class FamilyId:
     """Who a result record belongs to: the family's code, basis, noise model, decoder and rounds rule.
 
-    ``noise_options`` (the options' canonical JSON) tells apart families that differ only there; it is not
+    ``noise_options`` (the options' canonical ``name=value`` text) tells apart families that differ only there; it is not
     part of a record's JSON, which starts with the five other keys (:meth:`to_json`). ``source`` is
     ``measured`` for a family of points decoded from measured records (``codebench lab decode``); only
     then does the JSON carry it (``"source": "measured"`` after the five keys), so simulated records read
@@ -47,7 +47,7 @@ class FamilyId:
     noise: str
     decoder: str
     rounds: str
-    noise_options: str = "{}"
+    noise_options: str = ""
     source: str = DEFAULT_SOURCE
 
     def to_json(self) -> dict[str, Any]:
@@ -114,7 +114,7 @@ def group_families(frame: pd.DataFrame) -> list[Family]:
     """Every family with at least two distances, in a stable order."""
     frame = with_source(_usable(frame))
     if "noise_options" not in frame.columns:
-        frame = frame.assign(noise_options="{}")
+        frame = frame.assign(noise_options="")
     families: list[Family] = []
     # Simulated families first, in the order they always had; measured ones after them.
     for source in sorted(frame["source"].unique(), key=lambda s: (s != DEFAULT_SOURCE, s)):

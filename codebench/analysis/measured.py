@@ -68,7 +68,7 @@ def compare_measured(frame: pd.DataFrame) -> tuple[MeasuredComparison, ...]:
         return ()
     frame = with_source(frame)
     if "noise_options" not in frame.columns:
-        frame = frame.assign(noise_options="{}")
+        frame = frame.assign(noise_options="")
     simulated = frame[(frame["source"] != "measured") & (frame["shots"] > 0)]
     out = []
     for _, row in frame[frame["source"] == "measured"].iterrows():

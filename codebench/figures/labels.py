@@ -11,12 +11,12 @@ An unknown model name gets the standard physical rate and shows every option.
 
 from __future__ import annotations
 
-import json
 import re
 
 from codebench.analysis.families import DEFAULT_SOURCE, Family
 from codebench.noise import NOISE_MODELS
 from codebench.noise.base import PHYSICAL_RATE, NoiseModel, RateMeaning
+from codebench.options import parse_options_text
 
 SEPARATOR = " \u00b7 "
 #: Characters of the family line that fit above the axes of a 7-inch figure.
@@ -56,12 +56,7 @@ def rate_noun(rate: RateMeaning, article: bool = False) -> str:
 
 def non_default_options(noise: str, noise_options: str) -> dict[str, str]:
     """The noise options that differ from the model's defaults (all of them if the model is unknown)."""
-    try:
-        options = json.loads(noise_options) if noise_options else {}
-    except (TypeError, ValueError):
-        return {"options": str(noise_options)}
-    if not isinstance(options, dict):
-        return {"options": str(options)}
+    options = parse_options_text(noise_options)
     model = _model(noise)
     defaults = {key: str(spec.default) for key, spec in model.option_specs.items()} if model is not None else {}
     return {str(k): str(v) for k, v in sorted(options.items()) if defaults.get(str(k)) != str(v)}

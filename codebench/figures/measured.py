@@ -51,7 +51,7 @@ def plans(frame: pd.DataFrame) -> list[FigurePlan[MeasuredInputs]]:
         return []
     frame = with_source(frame[frame["shots"] > 0])
     if "noise_options" not in frame.columns:
-        frame = frame.assign(noise_options="{}")
+        frame = frame.assign(noise_options="")
     keys = ["code", "basis", "noise", "noise_options", "rounds", "p"]
     out = []
     for key, group in frame.groupby(keys, sort=True):

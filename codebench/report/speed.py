@@ -43,10 +43,10 @@ def round_durations_us(folder: Path, frame: pd.DataFrame) -> dict[str, float]:
     ``folder``'s store; points of other noise models have no duration and are left out.
     """
     path = Path(folder) / STORE_NAME
-    if frame.empty or "noise" not in frame.columns or "key" not in frame.columns or not path.exists():
+    if frame.empty or "noise" not in frame.columns or "point_id" not in frame.columns or not path.exists():
         return {}
     timed = frame["noise"].astype(str).map(has_clock).astype(bool)
-    wanted = set(frame.loc[timed, "key"].astype(str))
+    wanted = set(frame.loc[timed, "point_id"].astype(str))
     if not wanted:
         return {}
     try:
@@ -88,7 +88,7 @@ def speed_table(frame: pd.DataFrame, durations: dict[str, float]) -> Table:
         if shots <= 0:
             continue
         clocked = has_clock(str(item.get("noise")))
-        round_us = durations.get(str(item.get("key"))) if clocked else None
+        round_us = durations.get(str(item.get("point_id"))) if clocked else None
         # Points with a round duration are compared one rate at a time; other points pool over p.
         key = (str(item.get("decoder", "")), str(item.get("code", "")), str(item.get("noise", "")),
                int(item.get("distance") or 0), str(item.get("noise_options", "")) if clocked else "",

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 
@@ -10,6 +9,7 @@ import pandas as pd
 
 from codebench.files import write_atomically
 from codebench.noise import NOISE_MODELS
+from codebench.options import options_text
 from codebench.records import BatchSchedule, Point
 from codebench.results.pairing import paired_counts
 from codebench.results.store import UNLISTED, MeasuredResult, Store, StoredPoint
@@ -24,7 +24,7 @@ COLUMNS = [
 ]
 EXTRA_COLUMNS = [
     "decode_seconds", "decode_us_per_round", "batches", "complete", "interval", "noise_options", "decoder_options",
-    "key", "source",
+    "source", "in_sweep_file", "point_id",
 ]
 #: The key of ``frame.attrs`` holding the decoders' paired counts (:class:`~codebench.results.pairing.PairedCounts`
 #: as JSON records) of a results table.
@@ -36,9 +36,9 @@ DATA_WEIGHTS = " (data weights)"
 
 
 def _options_column(noise: str, options: dict[str, str]) -> str:
-    """Noise options as JSON, as the model shows them (a device by its name and content digest)."""
+    """Noise options as ``name=value`` text, as the model shows them (a device by its name and content digest)."""
     model = NOISE_MODELS.get(noise)
-    return json.dumps(model.display_options(options) if model is not None else options, sort_keys=True)
+    return options_text(model.display_options(options) if model is not None else options)
 
 
 def decode_us_per_round(decode_seconds: float, shots: int, rounds: int) -> float:
@@ -128,8 +128,8 @@ def _simulated_rows(store: Store, members: list[tuple[StoredPoint, str]], interv
             "decode_us_per_round": decode_us_per_round(t.decode_seconds, t.shots, point.rounds),
             "batches": t.batches, "complete": t.finished, "interval": interval,
             "noise_options": _options_column(point.noise, dict(point.noise_options)),
-            "decoder_options": json.dumps(dict(point.decoder_options), sort_keys=True),
-            "key": member.key, "source": "simulated",
+            "decoder_options": options_text(dict(point.decoder_options)),
+            "source": "simulated", "in_sweep_file": study != UNLISTED, "point_id": member.key,
         })
     return rows
 
@@ -146,8 +146,8 @@ def _measured_row(result: MeasuredResult, interval: str) -> dict[str, object]:
         "decode_us_per_round": decode_us_per_round(result.decode_seconds, result.shots, point.rounds),
         "batches": 0, "complete": True, "interval": interval,
         "noise_options": _options_column(point.noise, dict(point.noise_options)),
-        "decoder_options": json.dumps(dict(point.decoder_options), sort_keys=True),
-        "key": result.key, "source": "measured",
+        "decoder_options": options_text(dict(point.decoder_options)),
+        "source": "measured", "in_sweep_file": False, "point_id": result.key,
     }
     if result.weights == "data":
         row["decoder"] = f"{point.decoder}{DATA_WEIGHTS}"
