@@ -176,3 +176,14 @@ def test_the_paired_interval_reduces_to_wilson_ends_and_covers_by_exact_enumerat
             if low <= truth <= high:
                 covered += math.exp(log_prob)
         assert 0.92 <= covered <= most, (cells, covered)
+
+
+def test_one_decoder_with_two_settings_is_compared_under_the_option_that_differs(tmp_path: Path) -> None:
+    study = {"label": "osd", "code": "rotated_surface", "distances": [3], "rounds": 3, "noise": "si1000",
+             "p": [0.006], "decoders": ["bposd"], "decoder_options": {"bposd": {"osd_order": 0}}}
+    config = {"name": "osd", "seed": SEED, "stopping": {"failure_target": 40, "shot_budget": 3000},
+              "study": [study, {**study, "label": "osd2", "decoder_options": {"bposd": {"osd_order": 4}}}]}
+    frame = run_sweep(config, out=tmp_path, executor=InProcessExecutor(), progress=False)
+    (comparison,) = analyze(frame, bootstrap=20).decoder_comparisons
+    assert (comparison.first, comparison.second) == ("bposd (osd_order=0)", "bposd (osd_order=4)")
+    assert comparison.study == "osd + osd2" and comparison.shots > 0

@@ -116,7 +116,8 @@ def decoder_comparisons(frame: pd.DataFrame) -> tuple[DecoderComparison, ...]:
         return ()
     present = {tuple(_plain(row[name]) for name in (*_ROW, "decoder")) for _, row in frame.iterrows()}
     kept = [r for r in records
-            if all(tuple(_plain(r[name]) for name in _ROW) + (r[which],) in present for which in ("first", "second"))]
+            if all(tuple(_plain(r[name]) for name in _ROW) + (r.get(f"{which}_decoder") or r[which],) in present
+                   for which in ("first", "second"))]
     return compare_decoders(kept)
 
 

@@ -46,6 +46,9 @@ class PairedCounts:
     both: int
     first_only: int
     second_only: int
+    #: The decoders' names as the results table has them (``first``/``second`` may add options).
+    first_decoder: str = ""
+    second_decoder: str = ""
 
     @property
     def first_failures(self) -> int:
@@ -67,12 +70,18 @@ def _physical(member: StoredPoint) -> str:
     return json.dumps(params, sort_keys=True)
 
 
-def _decoder_name(member: StoredPoint) -> str:
-    point = member.point
-    if not point.decoder_options:
-        return point.decoder
-    options = ",".join(f"{k}={v}" for k, v in point.decoder_options)
-    return f"{point.decoder}({options})"
+def _labels(first: StoredPoint, second: StoredPoint) -> tuple[str, str]:
+    """The two decoders as a reader tells them apart: their names, and where the names are equal the
+    options in which they differ (all options, defaults included, would bury the difference)."""
+    a, b = first.point, second.point
+    if a.decoder != b.decoder:
+        return a.decoder, b.decoder
+    options_a, options_b = dict(a.decoder_options), dict(b.decoder_options)
+    differing = sorted(k for k in set(options_a) | set(options_b) if options_a.get(k) != options_b.get(k))
+
+    def label(name: str, options: dict[str, object]) -> str:
+        return f"{name} ({', '.join(f'{k}={options.get(k, '-')}' for k in differing)})"
+    return label(a.decoder, options_a), label(b.decoder, options_b)
 
 
 def comparable_groups(members: Sequence[tuple[StoredPoint, str]]) -> list[list[StoredPoint]]:
@@ -101,9 +110,10 @@ def paired_counts(store: Store, members: Sequence[tuple[StoredPoint, str]]) -> l
         for first, second in combinations(group, 2):
             point = first.point
             shots, both, first_only, second_only = _pair(counted[first.key], counted[second.key])
-            out.append(PairedCounts(_studies(study_of[first.key], study_of[second.key]), point.code, point.distance, point.rounds, point.basis,
-                                    point.noise, point.p, _decoder_name(first), _decoder_name(second), shots,
-                                    both, first_only, second_only))
+            study = _studies(study_of[first.key], study_of[second.key])
+            out.append(PairedCounts(study, point.code, point.distance, point.rounds, point.basis, point.noise,
+                                    point.p, *_labels(first, second), shots, both, first_only, second_only,
+                                    first.point.decoder, second.point.decoder))
     return out
 
 
