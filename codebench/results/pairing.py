@@ -80,7 +80,8 @@ def _labels(first: StoredPoint, second: StoredPoint) -> tuple[str, str]:
     differing = sorted(k for k in set(options_a) | set(options_b) if options_a.get(k) != options_b.get(k))
 
     def label(name: str, options: dict[str, object]) -> str:
-        return f"{name} ({', '.join(f'{k}={options.get(k, '-')}' for k in differing)})"
+        chosen = ", ".join(f"{k}={options.get(k, '-')}" for k in differing)
+        return f"{name} ({chosen})"
     return label(a.decoder, options_a), label(b.decoder, options_b)
 
 
