@@ -14,6 +14,7 @@ from typing import Any
 
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
+from matplotlib.ticker import FuncFormatter
 
 from codebench.figures.canvas import FigurePlan, log_axis, new_figure
 from codebench.figures.data import spans_decades
@@ -87,12 +88,13 @@ def draw(inputs: DifferenceInputs) -> Figure:
         ax.set_visible(False)
     for ax in axes[:, 0]:
         ax.set_ylabel("difference in failure probability")
+    fig.supxlabel(inputs.panels[0].x_label, fontsize=12, color=INK)
     fig.suptitle(f"{inputs.first} minus {inputs.second}, decoded on the same shots\n{inputs.subline}",
                  x=0.01, ha="left", fontsize=13, color=INK)
     handles = [Line2D([], [], color=INK, marker="o", linestyle="none", markersize=6),
                Line2D([], [], color=INK, linewidth=2.2), Line2D([], [], color=GUIDE_INK, linewidth=1.0)]
     fig.legend(handles, ["difference", "paired 95% interval (same shots)", "95% interval without pairing"],
-               loc="outside lower center", ncols=3, fontsize=10)
+               loc="outside upper right", ncols=1, fontsize=9.5)
     return fig
 
 
@@ -111,6 +113,11 @@ def _panel(ax: Any, panel: PanelInputs) -> None:
         ax.plot([p], [difference], marker="o", color=colour, markersize=6, markeredgecolor="white", zorder=4)
     ax.axhline(0.0, color=MUTED, linewidth=0.9, linestyle="--", zorder=1)
     ax.set_title(f"d = {panel.distance}", loc="left", fontsize=11.5, color=colour)
-    ax.set_xlabel(panel.x_label)
-    ax.ticklabel_format(axis="y", style="sci", scilimits=(-2, 3), useMathText=False)
+    # Ticks at the sampled rates only (a linear axis between two close rates crowds its labels), the
+    # y values as plain numbers (no offset text above the axis).
+    ax.set_xticks(ps, [f"{p:g}" for p in ps])
+    ax.xaxis.set_minor_formatter(FuncFormatter(lambda value, _: ""))
+    if not log_x:
+        ax.set_xlim(min(ps) - 0.12 * span, max(ps) + 0.12 * span)
+    ax.yaxis.set_major_formatter(FuncFormatter(lambda value, _: f"{value:.2g}"))
 
