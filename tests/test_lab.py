@@ -170,6 +170,10 @@ def _malformed(tmp_path: Path, case: str) -> list[str]:
     elif case == "not JSON":
         path = write_records(tmp_path / "shots.b8", records)
         description.write_text("{")
+    elif case == "text records read as npy":
+        path = tmp_path / "shots.txt"
+        path.write_text("0" * bits + "\n")
+        return [str(path), "--description", str(description), "--format", "npy"]
     else:
         path = tmp_path / "shots.r8"
         path.write_bytes(b"\xff\xff")
@@ -180,7 +184,8 @@ def _malformed(tmp_path: Path, case: str) -> list[str]:
 @pytest.mark.parametrize("case", ["wrong number of bits", "records of another experiment", "truncated b8",
                                   "description of another circuit", "description against the point", "not JSON",
                                   "bad r8", "too few shots", "random records of the right width",
-                                  "point options beside a description", "unknown decoder in the description"])
+                                  "point options beside a description", "unknown decoder in the description",
+                                  "text records read as npy"])
 def test_malformed_input_is_one_line_and_exit_2(tmp_path: Path, capsys: pytest.CaptureFixture[str], case: str,
                                                verb: str) -> None:
     arguments = _malformed(tmp_path, case)
@@ -188,6 +193,7 @@ def test_malformed_input_is_one_line_and_exit_2(tmp_path: Path, capsys: pytest.C
     assert main(["lab", verb, *arguments, "--out", str(out)]) == 2
     err = [line for line in capsys.readouterr().err.splitlines() if line.strip()]
     assert len(err) == 1, err
+    assert "allow_pickle" not in err[0]  # NumPy's advice to load a pickle unsafely never reaches the user
     assert not out.exists()
 
 

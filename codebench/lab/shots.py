@@ -83,7 +83,17 @@ def _stim_read(file: Path, fmt: str, bits: int) -> np.ndarray:
     return np.asarray(data, dtype=bool)
 
 
+#: The first bytes of every .npy file (NumPy's format, version 1 and later).
+NPY_MAGIC = b"\x93NUMPY"
+
+
 def _read_npy(file: Path, bits: int) -> np.ndarray:
+    with file.open("rb") as handle:
+        start = handle.read(len(NPY_MAGIC))
+    if start != NPY_MAGIC:
+        # np.load would take it for a pickle and advise loading it unsafely: say what it is not instead.
+        raise DataError(f"{file}: not a NumPy .npy array (it does not start with the .npy header); give "
+                        "--format 01, b8 or r8 for the other record formats.")
     try:
         data = np.load(file, allow_pickle=False)
     except (ValueError, OSError, EOFError) as exc:
