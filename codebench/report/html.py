@@ -47,7 +47,7 @@ p.intro { margin: 2px 0 10px; color: var(--muted); font-size: 14px; }
 .card.alert { border-top-color: var(--bad); }
 .scroll { overflow-x: auto; max-width: 100%; }
 table { border-collapse: collapse; width: 100%; font-size: 13px; font-variant-numeric: tabular-nums; }
-th { text-align: left; background: #f1efe8; color: #3a404c; font-weight: 600; font-size: 12.5px; white-space: nowrap; }
+th { text-align: left; background: #f1efe8; color: #3a404c; font-weight: 600; font-size: 12.5px; }
 th, td { padding: 5px 7px; border-bottom: 1px solid var(--line); vertical-align: top; }
 td.num { text-align: right; }
 td .ci { white-space: nowrap; font-size: 12px; color: var(--muted); }
