@@ -8,6 +8,8 @@ Usage::
 :func:`codebench.report.write_report`). The PNG (default
 ``DIR/report/report.png``) is one screenshot of a ``width`` x ``height``
 window: a quick look at how the page reads, for instance before a review.
+:func:`dump_dom` gives the page's DOM after it loaded, scripts run, at a
+given window size (``tests/test_report_layout.py`` measures the layout so).
 
 Chromium runs with a fresh, throw-away profile and with every background
 service it offers turned off (no network access beyond the local file). It
@@ -38,7 +40,12 @@ def find_chromium() -> str | None:
     return None
 
 
-def chromium_command(binary: str, page: Path, png: Path, profile: Path, width: int, height: int) -> list[str]:
+def chromium_command(binary: str, page: Path, png: Path | None, profile: Path, width: int, height: int) -> list[str]:
+    """Chromium's command line: a screenshot into ``png``, or with ``png`` None the DOM on standard output.
+
+    Scrollbars are hidden in screenshots only; the DOM is laid out with them, as a reader's window is.
+    """
+    action = ["--hide-scrollbars", f"--screenshot={png}"] if png is not None else ["--dump-dom"]
     return [
         binary,
         "--headless",
@@ -49,32 +56,47 @@ def chromium_command(binary: str, page: Path, png: Path, profile: Path, width: i
         "--disable-background-networking",
         "--disable-component-update",
         "--disable-sync",
-        "--hide-scrollbars",
         f"--user-data-dir={profile}",
-        f"--screenshot={png}",
+        *action,
         f"--window-size={width},{height}",
         page.resolve().as_uri(),
     ]
 
 
-def render(page: Path, png: Path, width: int = 1400, height: int = 4000, timeout: float = 180.0) -> Path:
-    """Screenshot ``page`` into ``png``; raises FileNotFoundError without Chromium, RuntimeError if it fails."""
+def _run_chromium(page: Path, png: Path | None, width: int, height: int,
+                  timeout: float) -> subprocess.CompletedProcess[str]:
     binary = find_chromium()
     if binary is None:
         raise FileNotFoundError(f"Chromium was not found (looked for {', '.join(CANDIDATES)}); {INSTALL_HINT}.")
+    with tempfile.TemporaryDirectory(prefix="codebench-chromium-") as profile:
+        command = chromium_command(binary, page, png, Path(profile), width, height)
+        try:
+            return subprocess.run(command, capture_output=True, text=True, timeout=timeout)
+        except subprocess.TimeoutExpired as exc:
+            raise RuntimeError(f"Chromium did not finish within {timeout:.0f} s.") from exc
+
+
+def _failure(result: subprocess.CompletedProcess[str], what: str) -> RuntimeError:
+    detail = (result.stderr or result.stdout).strip().splitlines()[-5:]
+    return RuntimeError(f"Chromium exited with status {result.returncode} and wrote no {what}:\n" + "\n".join(detail))
+
+
+def dump_dom(page: Path, width: int = 1280, height: int = 2000, timeout: float = 180.0) -> str:
+    """``page``'s DOM after loading in a ``width`` x ``height`` window; errors as :func:`render`."""
+    result = _run_chromium(page, None, width, height, timeout)
+    if "<html" not in result.stdout:
+        raise _failure(result, "DOM")
+    return result.stdout
+
+
+def render(page: Path, png: Path, width: int = 1400, height: int = 4000, timeout: float = 180.0) -> Path:
+    """Screenshot ``page`` into ``png``; raises FileNotFoundError without Chromium, RuntimeError if it fails."""
     png.parent.mkdir(parents=True, exist_ok=True)
     if png.exists():
         png.unlink()
-    with tempfile.TemporaryDirectory(prefix="codebench-chromium-") as profile:
-        command = chromium_command(binary, page, png.resolve(), Path(profile), width, height)
-        try:
-            result = subprocess.run(command, capture_output=True, text=True, timeout=timeout)
-        except subprocess.TimeoutExpired as exc:
-            raise RuntimeError(f"Chromium did not finish within {timeout:.0f} s.") from exc
+    result = _run_chromium(page, png.resolve(), width, height, timeout)
     if not png.exists():
-        detail = (result.stderr or result.stdout).strip().splitlines()[-5:]
-        raise RuntimeError(f"Chromium exited with status {result.returncode} and wrote no screenshot:\n"
-                           + "\n".join(detail))
+        raise _failure(result, "screenshot")
     return png
 
 

@@ -25,7 +25,7 @@ _CSS = """
 * { box-sizing: border-box; }
 body { margin: 0; background: #efede7; color: var(--ink); font: 15px/1.5 system-ui, sans-serif; }
 header { background: var(--head); color: #fff; padding: 26px 0 22px; }
-.wrap { max-width: 1260px; margin: 0 auto; padding: 0 32px; }
+.wrap { max-width: 1260px; margin: 0 auto; padding: 0 24px; }
 header .kicker { text-transform: uppercase; letter-spacing: .12em; font-size: 12px; color: #9fd3cf; }
 header h1 { margin: 4px 0 6px; font-size: 30px; font-weight: 700; }
 header p { margin: 0; color: #c9d4db; }
@@ -34,7 +34,7 @@ nav a { color: #fff; text-decoration: none; font-size: 13px; padding: 3px 10px; 
         border-radius: 12px; }
 nav a:hover { background: #24485b; }
 main { padding-bottom: 48px; }
-section { background: #fff; border: 1px solid var(--line); border-radius: 8px; padding: 18px 24px 20px;
+section { background: #fff; border: 1px solid var(--line); border-radius: 8px; padding: 18px 20px 20px;
           margin: 18px 0; }
 h2 { margin: 0 0 12px; font-size: 21px; padding-left: 11px; border-left: 5px solid var(--accent); }
 h3 { margin: 20px 0 6px; font-size: 16px; }
@@ -45,29 +45,32 @@ p.intro { margin: 2px 0 10px; color: var(--muted); font-size: 14px; }
 .card .label { color: var(--muted); font-size: 12px; text-transform: uppercase; letter-spacing: .06em; }
 .card .value { font-size: 22px; font-weight: 700; font-variant-numeric: tabular-nums; overflow-wrap: anywhere; }
 .card.alert { border-top-color: var(--bad); }
-.scroll { overflow-x: auto; }
-table { border-collapse: collapse; width: 100%; font-size: 13.5px; font-variant-numeric: tabular-nums; }
-th { text-align: left; background: #f1efe8; color: #3a404c; font-weight: 600; white-space: nowrap; }
-th, td { padding: 5px 9px; border-bottom: 1px solid var(--line); vertical-align: top; }
-td.num { text-align: right; white-space: nowrap; }
+.scroll { overflow-x: auto; max-width: 100%; }
+table { border-collapse: collapse; width: 100%; font-size: 13px; font-variant-numeric: tabular-nums; }
+th { text-align: left; background: #f1efe8; color: #3a404c; font-weight: 600; font-size: 12.5px; }
+th, td { padding: 5px 7px; border-bottom: 1px solid var(--line); vertical-align: top; }
+td.num { text-align: right; }
+td .ci { white-space: nowrap; font-size: 12px; color: var(--muted); }
+td .badge { white-space: normal; }
 tbody tr:nth-child(even) td { background: #faf9f6; }
 tr.few td { background: var(--warn-bg) !important; }
 tr.incomplete td { background: var(--bad-bg) !important; }
 tr.extrapolated td { background: #fffaf0 !important; }
 td.empty { color: var(--muted); font-style: italic; }
 table.facts th { width: 190px; background: none; color: var(--muted); font-weight: 500; }
+table.facts td { overflow-wrap: anywhere; }
 .badge { display: inline-block; padding: 0 8px; border-radius: 10px; font-size: 12px; font-weight: 600;
          white-space: nowrap; }
 .badge.warn { background: #fbe2b5; color: #6d4100; }
 .badge.bad { background: #f6c9c5; color: #7a1f1f; }
 .badge.ok { background: #d3ece9; color: #0d5656; }
 pre { background: #1f2430; color: #ebe8df; padding: 14px 16px; border-radius: 6px; overflow-x: auto;
-      font: 13px/1.45 ui-monospace, monospace; }
+      max-width: 100%; white-space: pre-wrap; overflow-wrap: anywhere; font: 13px/1.45 ui-monospace, monospace; }
 ul.notes { margin: 0; padding-left: 20px; }
 ul.notes li { margin: 3px 0; }
-.figures { display: grid; grid-template-columns: repeat(auto-fill, minmax(560px, 1fr)); gap: 16px; }
-figure { margin: 0; border: 1px solid var(--line); border-radius: 8px; padding: 10px 12px; background: #fff; }
-figure svg { display: block; width: 100%; height: auto; }
+.figures { display: grid; grid-template-columns: repeat(auto-fill, minmax(min(560px, 100%), 1fr)); gap: 16px; }
+figure { margin: 0; min-width: 0; border: 1px solid var(--line); border-radius: 8px; padding: 10px 12px; background: #fff; }
+figure svg, figure img { display: block; width: 100%; max-width: 100%; height: auto; }
 figcaption { font-size: 13px; color: var(--muted); margin-top: 4px; }
 figcaption a { color: var(--accent); font-weight: 600; text-decoration: none; margin-left: 6px; }
 figcaption .file { color: #8a909b; font-size: 12px; overflow-wrap: anywhere; }
@@ -91,10 +94,15 @@ def esc(text: Any) -> str:
     return escape(str(text), quote=True)
 
 
+_INTERVAL = re.compile(r"\[[^\]\s]*, [^\]\s]*\]")
+
+
 def _cell(cell: Cell) -> str:
+    """A cell's HTML: names may break after an underscore, an interval ``[low, high]`` breaks off whole."""
     if isinstance(cell, Badge):
         return f'<span class="badge {esc(cell.kind)}">{esc(cell.text)}</span>'
-    return esc(cell)
+    text = esc(cell).replace("_", "_<wbr>")
+    return _INTERVAL.sub(lambda m: f'<span class="ci">{m.group(0)}</span>', text)
 
 
 def html_table(table: Table, css: str = "") -> str:
