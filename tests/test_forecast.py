@@ -482,6 +482,16 @@ def test_near_threshold_targets_are_not_projected_far() -> None:
     assert near.distance is not None and near.distance <= 14 and near.not_projected is None
 
 
+def _fits_a_review_window(page: Path, work: Path) -> None:
+    """The forecast page's tables and figures fit at 1280 px (see tests/test_report_layout.py), where Chromium is."""
+    import test_report_layout as layout
+
+    if layout.SCRIPT.find_chromium() is None:
+        return
+    result = layout.measure(page, work)
+    assert result["overflows"] == [], "\n".join(result["overflows"])
+
+
 def test_report_of_a_forecast_folder_and_of_a_sweep_folder_holding_one(
         improved: tuple[ForecastResult, Path], tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     """`codebench report` on a forecast's --out folder writes its own page (tables, figure, cautions,
@@ -499,6 +509,7 @@ def test_report_of_a_forecast_folder_and_of_a_sweep_folder_holding_one(
         assert text in page
     assert f"{result.distances[0].per_round_rate:.3e}" in page
     assert "Break-even" in (out / "report" / "summary.md").read_text(encoding="utf-8")
+    _fits_a_review_window(out / "report" / "index.html", tmp_path / "layout")
     sweep = tmp_path / "sweep"
     run_sweep({"name": "with-forecast", "seed": 2, "stopping": {"shot_budget": 2000},
                "study": [{"code": "repetition", "distances": [3, 5], "rounds": "d", "noise": "si1000",
