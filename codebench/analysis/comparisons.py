@@ -11,46 +11,26 @@ and the exact McNemar test of "both fail equally often".
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass, fields
 from typing import Any, Iterable, Mapping
 
 import pandas as pd
 
 from codebench.results.export import PAIRS_ATTR
+from codebench.results.pairing import PairedCounts
 from codebench.stats import exact_mcnemar_p, paired_difference_interval, per_round
 
 
-@dataclass(frozen=True)
-class DecoderComparison:
+@dataclass(frozen=True, kw_only=True)
+class DecoderComparison(PairedCounts):
     """``first`` minus ``second``: difference of whole-experiment failure rates on ``shots`` shared shots."""
 
-    study: str
-    code: str
-    distance: int
-    rounds: int
-    basis: str
-    noise: str
-    p: float
-    first: str
-    second: str
-    shots: int
-    both: int
-    first_only: int
-    second_only: int
     difference: float
     low: float
     high: float
     unpaired_low: float
     unpaired_high: float
     mcnemar_p: float
-
-    @property
-    def first_failures(self) -> int:
-        return self.both + self.first_only
-
-    @property
-    def second_failures(self) -> int:
-        return self.both + self.second_only
 
     @property
     def narrowing(self) -> float | None:
@@ -89,19 +69,18 @@ def compare_decoders(records: Iterable[Mapping[str, Any]]) -> tuple[DecoderCompa
     """One comparison per paired-count record (:class:`~codebench.results.pairing.PairedCounts` as JSON)."""
     out = []
     for r in records:
-        shots, both, first_only, second_only = (int(r[k]) for k in ("shots", "both", "first_only", "second_only"))
-        neither = shots - both - first_only - second_only
-        difference, low, high = paired_difference_interval(both, first_only, second_only, neither)
-        _, unpaired_low, unpaired_high = paired_difference_interval(both, first_only, second_only, neither,
-                                                                    correlated=False)
-        out.append(DecoderComparison(
-            str(r["study"]), str(r["code"]), int(r["distance"]), int(r["rounds"]), str(r["basis"]),
-            str(r["noise"]), float(r["p"]), str(r["first"]), str(r["second"]), shots, both, first_only,
-            second_only, difference, low, high, unpaired_low, unpaired_high,
-            exact_mcnemar_p(first_only, second_only)))
+        counts = PairedCounts(**{name: r[name] for name in _COUNT_FIELDS if name in r})
+        neither = counts.shots - counts.both - counts.first_only - counts.second_only
+        cells = (counts.both, counts.first_only, counts.second_only, neither)
+        difference, low, high = paired_difference_interval(*cells)
+        _, unpaired_low, unpaired_high = paired_difference_interval(*cells, correlated=False)
+        out.append(DecoderComparison(**asdict(counts), difference=difference, low=low, high=high,
+                                     unpaired_low=unpaired_low, unpaired_high=unpaired_high,
+                                     mcnemar_p=exact_mcnemar_p(counts.first_only, counts.second_only)))
     return tuple(out)
 
 
+_COUNT_FIELDS = tuple(f.name for f in fields(PairedCounts))
 _ROW = ("code", "distance", "rounds", "basis", "noise", "p")
 
 
