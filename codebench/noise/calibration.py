@@ -56,6 +56,7 @@ from codebench.codes import CODE_FAMILIES
 from codebench.errors import DeviceFileError, not_allowed
 from codebench.noise.geometry import (
     Geometry,
+    named_sites,
     pair_marks,
     parse_coupling,
     qubit_marks,
@@ -220,21 +221,26 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
     if "coupling" in top:
         coupling_table = r.keys(top["coupling"], "coupling", ("edges", "lattice", "rows", "columns"))
         generated = parse_coupling(coupling_table, r.fail, lambda key: r.fail(f"coupling.{key}", key, "a key"))
-    lattice_ids = set(generated[0]) if generated is not None else set()
-
-    qubits: dict[str, QubitCalibration] = {}
     raw_qubits = top.get("qubits", [])
     if not isinstance(raw_qubits, list):
         raise r.fail("qubits", raw_qubits, "an array of tables ([[qubits]])")
+    if generated is not None:
+        generated = named_sites(generated, raw_qubits, r.fail)
+    lattice_ids = set(generated[0]) if generated is not None else set()
+
+    qubits: dict[str, QubitCalibration] = {}
     for i, entry in enumerate(raw_qubits):
         path = f"qubits[{i}]"
-        table = r.keys(entry, path, ("id",) + QUBIT_KEYS + ("x", "y", "usable"))
+        table = r.keys(entry, path, ("id",) + QUBIT_KEYS + ("x", "y", "usable", "site"))
         qid = table.get("id")
         if not isinstance(qid, str) or not qid:
             raise r.fail(f"{path}.id", qid, "a non-empty string")
+        if "site" in table and generated is None:
+            raise r.fail(f"{path}.site", table["site"], "a site only on a generated lattice ([coupling] lattice = ...)")
         if generated is not None and qid not in lattice_ids:
             raise r.fail(f"{path}.id", qid, f"a qubit of the {top['coupling']['lattice']} lattice (q<row>_<column>"
-                         + (", b<row>_<column> for bridges)" if top["coupling"]["lattice"] == "heavy_hex" else ")"))
+                         + (", b<row>_<column> for bridges" if top["coupling"]["lattice"] == "heavy_hex" else "")
+                         + ", or a name with site = one of them)")
         if qid in qubits:
             raise r.fail(f"{path}.id", qid, "an id no earlier qubit uses")
         values = r.qubit_values(table, path, {k: v for k, v in defaults.items() if k != "gate_2q_error"})
