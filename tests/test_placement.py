@@ -366,6 +366,16 @@ def _without_chip(path: Path) -> dict[str, Any]:
     return data
 
 
+def test_one_device_file_is_one_family_over_distances() -> None:
+    """Each placed distance writes its own [[layouts]] entry (its own key), but shows the device file's digest, so
+    a sweep's distances on one chip form one family (a Lambda fit, as on a device without a chip)."""
+    options = (("device", parse_device(grid_device(9, 9)).canonical_json()),)
+    placed = [DeviceNoise.options_for(options, "rotated_surface", d) for d in (3, 5)]
+    assert placed[0] != placed[1]
+    shown = {DeviceNoise.display_options(dict(o))["device"] for o in (options, *placed)}
+    assert len(shown) == 1
+
+
 def test_example_devices_have_chips() -> None:
     """The three example devices load with a coupling graph large enough for d = 7 (improved, goal: d = 15)."""
     import tomllib

@@ -28,7 +28,8 @@ A device file (TOML or JSON) in codebench's own schema::
     gate_2q_error = 6e-3
 
     [coupling]                          # optional: the device's coupling graph
-    edges = [["q0", "q1"], ["q1", "q2"]]
+    edges = [["q0", "q1"], ["q1", "q2"]]  # or lattice = "square", rows = 7, columns = 7 (ids q<r>_<c>;
+                                        # a [[qubits]] entry's site = "q2_3" gives that qubit its id)
 
     [[layouts]]                         # optional: code qubit i sits on device qubit qubits[i]
     code = "repetition"
@@ -111,6 +112,17 @@ class Device:
 
     def digest(self) -> str:
         return hashlib.sha256(self.canonical_json().encode()).hexdigest()[:12]
+
+    def file_digest(self) -> str:
+        """:meth:`digest` of the device as its file gives it: without the ``[[layouts]]`` entries a placement
+        wrote (``chosen_by``), so every distance placed on one device file shows the same digest."""
+        data = dict(self.data)
+        given = [entry for entry in data.get("layouts", []) if "chosen_by" not in entry]
+        if given:
+            data["layouts"] = given
+        else:
+            data.pop("layouts", None)
+        return hashlib.sha256(json.dumps(data, sort_keys=True, separators=(",", ":")).encode()).hexdigest()[:12]
 
     def qubit(self, device_qubit: str | None) -> QubitCalibration:
         if device_qubit is None:
