@@ -661,18 +661,40 @@ def test_gate_error_without_decoherence_adds_idle_on_gate_qubits() -> None:
             assert not [e for e in lay.after if e[0] == "PAULI_CHANNEL_1" and e[1][0] in lay.busy]
 
 
+def without_chip(path: Path) -> dict[str, Any]:
+    """An example device's file without its [coupling] chip and the sites of its qubits."""
+    raw = tomllib.loads(path.read_text())
+    raw.pop("coupling", None)
+    for entry in raw.get("qubits", []):
+        entry.pop("site", None)
+    return raw
+
+
 def test_defaults_apply_without_a_layout() -> None:
-    # d=5 has no [[layouts]] entry in the example, so every qubit gets the defaults.
-    circuit = noisy_circuit(device_point(current_json(), distance=5, rounds=2))
-    check_whole_circuit(circuit, RAW_CURRENT, "rotated_surface", 5, 1.0)
-    for path in sorted(DEVICES.glob("*.toml")):
-        raw = tomllib.loads(path.read_text())
-        if "coupling" in raw:
-            continue  # a device with a coupling graph places the code on its own qubits (tests/test_placement.py)
-        json_text = load_device(path).canonical_json()
+    # Without its chip the example has no placement, and d=5 no [[layouts]] entry: every qubit gets the defaults.
+    raw = without_chip(CURRENT)
+    circuit = noisy_circuit(device_point(parse_device(copy.deepcopy(raw)).canonical_json(), distance=5, rounds=2))
+    check_whole_circuit(circuit, raw, "rotated_surface", 5, 1.0)
+    for name in ("current", "improved", "goal"):  # the other examples' marks need their chips
+        raw = without_chip(DEVICES / f"larkspur_{name}.toml")
+        json_text = parse_device(copy.deepcopy(raw)).canonical_json()
         for basis in ("Z", "X"):
             check_whole_circuit(noisy_circuit(device_point(json_text, basis=basis, rounds=2)), raw, "rotated_surface", 3,
                                 1.0)
+
+
+def test_placed_patch_carries_its_device_qubits_numbers() -> None:
+    # On its chip the example's d=5 sits where the placement puts it, with each qubit's and coupler's own numbers
+    # (the placement written as a [[layouts]] entry of the raw file, for the reference).
+    from codebench.noise.device import DeviceNoise
+
+    placed = DeviceNoise(1.0, device=current_json()).placement("rotated_surface", 5)
+    assert placed is not None and {"a4", "m2"} <= set(placed)
+    raw = tomllib.loads(CURRENT.read_text())
+    raw["layouts"] = [*raw["layouts"], {"code": "rotated_surface", "distance": 5, "qubits": list(placed)}]
+    for basis in ("Z", "X"):
+        circuit = noisy_circuit(device_point(current_json(), distance=5, rounds=2, basis=basis))
+        check_whole_circuit(circuit, raw, "rotated_surface", 5, 1.0)
 
 
 def test_cx_native_device_circuit() -> None:

@@ -14,6 +14,7 @@ Sources, beside each check:
 from __future__ import annotations
 
 import copy
+import json
 import math
 import re
 from pathlib import Path
@@ -94,6 +95,14 @@ def test_geometry_validation_messages() -> None:
         ({"pairs": [{"qubits": ["q0_0", "q0_1"], "zz_khz": -1}]}, ["pairs[0].zz_khz", "-1", "kHz in [0, 10000]"]),
         ({"placement": "better"}, ["placement", "'better'", "'best', 'worst', 'median'"]),
         ({"placement": ["q0_0", "q0_0"]}, ["placement", "distinct device qubits"]),
+        ({"qubits": [{"id": "a0", "site": "q9_9"}]}, ["qubits[0].site", "'q9_9'", "a qubit of the lattice"]),
+        ({"qubits": [{"id": "a0", "site": "q0_0"}, {"id": "a1", "site": "q0_0"}]},
+         ["qubits[1].site", "'q0_0'", "no earlier entry names"]),
+        ({"qubits": [{"id": "q0_1", "site": "q0_0"}]}, ["qubits[0].id", "'q0_1'", "a name no other lattice qubit"]),
+        ({"qubits": [{"id": "a0", "site": "q0_0"}, {"id": "a0", "site": "q0_1"}]}, ["qubits[1].id", "'a0'"]),
+        # A named site has only its name: its lattice id is no longer a qubit of the file.
+        ({"qubits": [{"id": "a0", "site": "q0_0"}], "pairs": [{"qubits": ["q0_0", "q0_1"], "gate_2q_error": 0.01}]},
+         ["pairs[0].qubits[0]", "'q0_0'", "the id of a qubit of the [coupling] lattice"]),
     ]
     for change, fragments in cases:
         data = grid_device(3, 3)
@@ -109,6 +118,22 @@ def test_geometry_validation_messages() -> None:
             "qubits": [{"id": "a", "x": 0.0, "y": 1.0}]}
     with pytest.raises(DeviceFileError, match="only on a device with a \\[coupling\\] graph"):
         parse_device(bare)
+    with pytest.raises(DeviceFileError, match="a site only on a generated lattice"):
+        parse_device(dict(bare, qubits=[{"id": "a", "site": "q0_0"}]))
+
+
+def test_named_sites_keep_the_lattice() -> None:
+    """A named site is the same qubit of the chip: same place, same couplers, same circuit at the same numbers."""
+    plain = grid_device(5, 5, qubits=[{"id": "q2_2", "t1_us": 40.0, "t2_us": 30.0}],
+                        pairs=[{"qubits": ["q2_2", "q2_3"], "gate_2q_error": 0.02}])
+    named = grid_device(5, 5, qubits=[{"id": "a4", "site": "q2_2", "t1_us": 40.0, "t2_us": 30.0}],
+                        pairs=[{"qubits": ["a4", "q2_3"], "gate_2q_error": 0.02}])
+    g, h = parse_device(plain).geometry, parse_device(named).geometry
+    assert "a4" in h.nodes and "q2_2" not in h.nodes and h.coords["a4"] == g.coords["q2_2"] == (2.0, 2.0)
+    assert {frozenset("a4" if q == "q2_2" else q for q in e) for e in g.edges} == set(h.edges)
+    placed = [model_of(data).placement("rotated_surface", 3) for data in (plain, named)]
+    assert placed[1] == tuple("a4" if q == "q2_2" else q for q in placed[0])
+    assert noisy_circuit(point(plain)) == noisy_circuit(point(named))
 
 
 # --------------------------------------------------------------------------- enumeration
@@ -242,8 +267,6 @@ def test_an_explicit_placement_is_checked_by_every_command(tmp_path: Path,
                                                             capsys: pytest.CaptureFixture[str]) -> None:
     """The OpenQASM export, the placements command and a forecast refuse a placement that uses a dead qubit
     or the wrong number of qubits, in one line and before writing anything (as the circuit build does)."""
-    import json
-
     from codebench.cli import main
 
     data = grid_device(7, 7)
@@ -329,17 +352,91 @@ def test_per_qubit_and_per_pair_values_reach_the_circuit_text() -> None:
     assert "0.037" not in uniform and text != uniform
 
 
-def test_devices_without_geometry_are_unchanged() -> None:
-    """The example devices have no coupling graph: their circuits are built exactly as before issue 13."""
+EXAMPLES = Path(__file__).parents[1] / "configs" / "devices"
+
+
+def _without_chip(path: Path) -> dict[str, Any]:
+    """The example device's content without its coupling graph and sites (the file before issue 13, item 6)."""
     import tomllib
 
-    path = Path(__file__).parents[1] / "configs" / "devices" / "larkspur_current.toml"
     data = tomllib.loads(path.read_text())
-    device = parse_device(data)
-    assert not device.geometry.has_graph and device.placement == "best"
-    model = DeviceNoise(1.0, device=device.canonical_json())
-    assert model.placement("rotated_surface", 5) is None  # defaults, as before
-    assert model.placement("rotated_surface", 3) == device.layout_map("rotated_surface", 3)
+    del data["coupling"]
+    for entry in data.get("qubits", []):
+        entry.pop("site")
+    return data
+
+
+def test_one_device_file_is_one_family_over_distances() -> None:
+    """Each placed distance writes its own [[layouts]] entry (its own key), but shows the device file's digest, so
+    a sweep's distances on one chip form one family (a Lambda fit, as on a device without a chip)."""
+    options = (("device", parse_device(grid_device(9, 9)).canonical_json()),)
+    placed = [DeviceNoise.options_for(options, "rotated_surface", d) for d in (3, 5)]
+    assert placed[0] != placed[1]
+    shown = {DeviceNoise.display_options(dict(o))["device"] for o in (options, *placed)}
+    assert len(shown) == 1
+
+
+def test_example_devices_have_chips() -> None:
+    """The three example devices load with a coupling graph large enough for d = 7 (improved, goal: d = 15)."""
+    import tomllib
+
+    for name, side, listed in (("current", 13, 17), ("improved", 29, 0), ("goal", 29, 0)):
+        path = EXAMPLES / f"larkspur_{name}.toml"
+        device = parse_device(tomllib.loads(path.read_text()), str(path))
+        geometry = device.geometry
+        assert geometry.has_graph and len(geometry.nodes) == side * side and len(device.qubits) == listed
+        assert len(geometry.usable_edges()) == 2 * side * (side - 1) and not geometry.dead_qubits
+        assert set(geometry.coords) == set(geometry.nodes)
+    # The current device's listed qubits keep their names, in the middle of the chip (rows, columns 4-8).
+    current = parse_device(tomllib.loads((EXAMPLES / "larkspur_current.toml").read_text()))
+    assert all(4 <= current.geometry.coords[q][k] <= 8 for q in current.qubits for k in (0, 1))
+    assert current.layout_map("rotated_surface", 3) == tuple(current.qubits)
+
+
+def test_example_devices_keep_their_circuits() -> None:
+    """d = 3 on the current device, and every distance on the improved and goal devices, build the circuits
+    of the same files without a chip: the d = 3 patch sits on the listed qubits, and the other two chips'
+    qubits all have the defaults. (The counts still differ: the file's content is part of the point key.)"""
+    import tomllib
+
+    for name, distances in (("current", (3,)), ("improved", (3, 5)), ("goal", (3, 5))):
+        path = EXAMPLES / f"larkspur_{name}.toml"
+        chip = tomllib.loads(path.read_text())
+        for d in distances:
+            for basis in ("Z", "X"):
+                placed = Point("rotated_surface", d, d, basis, "device", 1.0, "mwpm", DeviceNoise.options_for(
+                    (("device", parse_device(chip).canonical_json()),), "rotated_surface", d))
+                assert noisy_circuit(placed) == noisy_circuit(point(_without_chip(path), distance=d, basis=basis))
+    # Larger distances of the current device now sit on its chip, the listed qubits included.
+    model = model_of(tomllib.loads((EXAMPLES / "larkspur_current.toml").read_text()))
+    for d, held in ((5, 15), (7, 17)):
+        placed = model.placement("rotated_surface", d)
+        assert placed is not None and sum(q[0] in "am" for q in placed) == held
+
+
+def test_forecast_places_d3_of_the_current_device_on_its_listed_qubits() -> None:
+    """The forecast's d = 3 patch uses the listed qubits, and the circuit carries their own numbers."""
+    import tomllib
+
+    from codebench.forecast import forecast
+
+    path = EXAMPLES / "larkspur_current.toml"
+    table = tomllib.loads(path.read_text())
+    listed = [entry["id"] for entry in table["qubits"]]
+    result = forecast(path, distances=(3, 5), work=2e6, workers=1)
+    assert list(result.placements["3"]) == listed == table["layouts"][0]["qubits"]
+    assert len(result.placements["5"]) == 49
+    device = parse_device(table)
+    # a4 (T1 64 us, T2 41 us) and the coupler a4-m2 (1.2e-2) are the listed qubit and pair of code qubits 4, 11.
+    assert device.qubit("a4").t1_us == 64.0 and device.pair_error("a4", "m2") == 1.2e-2
+    circuit = noisy_circuit(Point("rotated_surface", 3, 3, "Z", "device", 1.0, "mwpm",
+                                  (("device", device.canonical_json()),)))
+    weak = set()
+    for inst in circuit.flattened():
+        if inst.name == "DEPOLARIZE2" and inst.gate_args_copy() == [pytest.approx(1.2e-2 * 5 / 4, rel=1e-12)]:
+            targets = [t.value for t in inst.targets_copy()]
+            weak |= {frozenset(pair) for pair in zip(targets[::2], targets[1::2])}
+    assert weak == {frozenset((4, 11))}
 
 
 # --------------------------------------------------------------------------- the proxy
@@ -448,8 +545,9 @@ def test_placements_command_table_sampling_and_figure(tmp_path: Path, capsys: py
     assert "rank" in printed and "per round" in printed and "chosen (best)" in printed
     assert (out / "placements_rotated_surface_d3.png").stat().st_size > 10_000
     assert (out / "placements_rotated_surface_d3.svg").exists()
-    # A device without a coupling graph: one line, exit 2, nothing written.
-    bare = Path(__file__).parents[1] / "configs" / "devices" / "larkspur_goal.toml"
+    # A device without a coupling graph (the goal example without its chip): one line, exit 2, nothing written.
+    bare = tmp_path / "bare.json"
+    bare.write_text(json.dumps(_without_chip(EXAMPLES / "larkspur_goal.toml")))
     empty = tmp_path / "none"
     assert main(["placements", str(bare), "--distance", "3", "--out", str(empty)]) == 2
     err = [line for line in capsys.readouterr().err.splitlines() if line.strip()]
@@ -458,8 +556,6 @@ def test_placements_command_table_sampling_and_figure(tmp_path: Path, capsys: py
 
 
 def test_sweep_study_placement_key(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    import json
-
     from codebench.cli import main
     from codebench.config import load_sweep
 

@@ -28,7 +28,8 @@ A device file (TOML or JSON) in codebench's own schema::
     gate_2q_error = 6e-3
 
     [coupling]                          # optional: the device's coupling graph
-    edges = [["q0", "q1"], ["q1", "q2"]]
+    edges = [["q0", "q1"], ["q1", "q2"]]  # or lattice = "square", rows = 7, columns = 7 (ids q<r>_<c>;
+                                        # a [[qubits]] entry's site = "q2_3" gives that qubit its id)
 
     [[layouts]]                         # optional: code qubit i sits on device qubit qubits[i]
     code = "repetition"
@@ -56,6 +57,7 @@ from codebench.codes import CODE_FAMILIES
 from codebench.errors import DeviceFileError, not_allowed
 from codebench.noise.geometry import (
     Geometry,
+    named_sites,
     pair_marks,
     parse_coupling,
     qubit_marks,
@@ -110,6 +112,17 @@ class Device:
 
     def digest(self) -> str:
         return hashlib.sha256(self.canonical_json().encode()).hexdigest()[:12]
+
+    def file_digest(self) -> str:
+        """:meth:`digest` of the device as its file gives it: without the ``[[layouts]]`` entries a placement
+        wrote (``chosen_by``), so every distance placed on one device file shows the same digest."""
+        data = dict(self.data)
+        given = [entry for entry in data.get("layouts", []) if "chosen_by" not in entry]
+        if given:
+            data["layouts"] = given
+        else:
+            data.pop("layouts", None)
+        return hashlib.sha256(json.dumps(data, sort_keys=True, separators=(",", ":")).encode()).hexdigest()[:12]
 
     def qubit(self, device_qubit: str | None) -> QubitCalibration:
         if device_qubit is None:
@@ -220,21 +233,26 @@ def parse_device(data: Any, source: str = "<dict>") -> Device:
     if "coupling" in top:
         coupling_table = r.keys(top["coupling"], "coupling", ("edges", "lattice", "rows", "columns"))
         generated = parse_coupling(coupling_table, r.fail, lambda key: r.fail(f"coupling.{key}", key, "a key"))
-    lattice_ids = set(generated[0]) if generated is not None else set()
-
-    qubits: dict[str, QubitCalibration] = {}
     raw_qubits = top.get("qubits", [])
     if not isinstance(raw_qubits, list):
         raise r.fail("qubits", raw_qubits, "an array of tables ([[qubits]])")
+    if generated is not None:
+        generated = named_sites(generated, raw_qubits, r.fail)
+    lattice_ids = set(generated[0]) if generated is not None else set()
+
+    qubits: dict[str, QubitCalibration] = {}
     for i, entry in enumerate(raw_qubits):
         path = f"qubits[{i}]"
-        table = r.keys(entry, path, ("id",) + QUBIT_KEYS + ("x", "y", "usable"))
+        table = r.keys(entry, path, ("id",) + QUBIT_KEYS + ("x", "y", "usable", "site"))
         qid = table.get("id")
         if not isinstance(qid, str) or not qid:
             raise r.fail(f"{path}.id", qid, "a non-empty string")
+        if "site" in table and generated is None:
+            raise r.fail(f"{path}.site", table["site"], "a site only on a generated lattice ([coupling] lattice = ...)")
         if generated is not None and qid not in lattice_ids:
             raise r.fail(f"{path}.id", qid, f"a qubit of the {top['coupling']['lattice']} lattice (q<row>_<column>"
-                         + (", b<row>_<column> for bridges)" if top["coupling"]["lattice"] == "heavy_hex" else ")"))
+                         + (", b<row>_<column> for bridges" if top["coupling"]["lattice"] == "heavy_hex" else "")
+                         + ", or a name with site = one of them)")
         if qid in qubits:
             raise r.fail(f"{path}.id", qid, "an id no earlier qubit uses")
         values = r.qubit_values(table, path, {k: v for k, v in defaults.items() if k != "gate_2q_error"})

@@ -173,11 +173,14 @@ class DeviceNoise(NoiseModel):
 
     @classmethod
     def display_options(cls, options: Mapping[str, str]) -> dict[str, str]:
-        """The device by name and content digest, ``"name [digest]"``, not its whole calibration."""
+        """The device by name and content digest, ``"name [digest]"``, not its whole calibration.
+
+        The digest is that of the device file (:meth:`Device.file_digest`): the points of one placed device
+        at several distances show one device, so they form one family (each keeps its own key)."""
         shown = dict(options)
         if "device" in shown:
             device = device_from_json(shown["device"])
-            shown["device"] = f"{device.name} [{device.digest()}]"
+            shown["device"] = f"{device.name} [{device.file_digest()}]"
         return shown
 
     def circuit_gate_set(self) -> GateSet:

@@ -18,6 +18,8 @@ so distance d needs a 2d - 1 by 2d - 1 square of the lattice (common practice fo
 neighbours, and a bridge qubit ``b{r}_{c}`` at (c, 2r + 1) between chain r and r + 1 at every column
 c = 0, 4, 8, ... (r even) or c = 2, 6, 10, ... (r odd), coupled to the two qubits above and below it:
 the heavy-hexagon lattice (Chamberland et al., PRX 10, 011022 (2020), Fig. 1), with maximum degree 3.
+A ``[[qubits]]`` entry may give a lattice qubit the lab's own name: ``id = "a0"`` with ``site = "q6_4"``
+(then the qubit is ``a0`` everywhere in the file, and ``q6_4`` is no longer an id).
 
 Marks (all optional): ``usable = false`` on a ``[[qubits]]`` entry (a dead or out-of-spec qubit) or on a
 ``[[pairs]]`` entry (a broken coupler); per coupler ``gate_2q_error``, ``gate_2q_ns`` (its own gate
@@ -104,10 +106,11 @@ def generate_lattice(kind: str, rows: int, columns: int) -> tuple[list[str], dic
 
 
 Fail = Callable[[str, Any, str], Exception]
+Generated = tuple[list[str], dict[str, tuple[float, float]], list[Any]]
 
 
 def parse_coupling(coupling: dict[str, Any], fail: Fail, unknown_key: Callable[[str], Exception]
-                   ) -> tuple[list[str], dict[str, tuple[float, float]], list[Any]] | None:
+                   ) -> Generated | None:
     """A generated lattice's (ids, coords, edges as lists), or ``None`` when ``[coupling]`` lists edges."""
     for key in coupling:
         if key not in ("edges", "lattice", "rows", "columns"):
@@ -130,6 +133,33 @@ def parse_coupling(coupling: dict[str, Any], fail: Fail, unknown_key: Callable[[
         sides.append(value)
     ids, coords, edges = generate_lattice(kind, sides[0], sides[1])
     return ids, coords, [sorted(e) for e in sorted(edges, key=sorted)]
+
+
+def named_sites(generated: Generated, entries: list[Any], fail: Fail) -> Generated:
+    """The generated lattice with the ``site`` of each ``[[qubits]]`` entry renamed to the entry's ``id``.
+
+    >>> ids, coords, edges = named_sites(parse_coupling({"lattice": "square", "rows": 1, "columns": 3},
+    ...     None, None), [{"id": "a0", "site": "q0_1"}], None)
+    >>> ids, coords["a0"], edges
+    (['q0_0', 'a0', 'q0_2'], (1.0, 0.0), [['a0', 'q0_0'], ['a0', 'q0_2']])
+    """
+    ids, coords, edges = generated
+    name: dict[str, str] = {}
+    for i, table in enumerate(entries):
+        if not isinstance(table, dict) or "site" not in table:
+            continue
+        path = f"qubits[{i}]"
+        site, qid = table["site"], table.get("id")
+        if not isinstance(site, str) or site not in coords or site in name:
+            raise fail(f"{path}.site", site, "a qubit of the lattice (q<row>_<column>) no earlier entry names")
+        if not isinstance(qid, str) or not qid or (qid in coords and qid != site) or qid in name.values():
+            raise fail(f"{path}.id", qid, "a name no other lattice qubit and no earlier entry has")
+        name[site] = qid
+    if not name:
+        return generated
+    renamed = [name.get(q, q) for q in ids]
+    return (renamed, {name.get(q, q): xy for q, xy in coords.items()},
+            [sorted(name.get(q, q) for q in edge) for edge in edges])
 
 
 def qubit_marks(entries: list[dict[str, Any]], generated: bool, fail: Fail

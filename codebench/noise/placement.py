@@ -281,17 +281,23 @@ def rank(candidates: Sequence[Placement], circuits: Callable[[Placement], Iterab
         else:
             pool = pool[:MAX_RANKED]
     ranked = []
+    # Placements whose circuits are the same (on a chip of equal qubits, every one) share one proxy.
+    seen: dict[tuple[str, ...], tuple[float, float, int]] = {}
     for candidate in pool:
-        total, weight, paths = 0.0, math.inf, 0
-        for circuit in circuits(candidate):
-            dem = circuit.detector_error_model(decompose_errors=True, ignore_decomposition_failures=True)
-            proxy, w, n = logical_proxy(dem)
-            total += proxy
-            if w < weight:
-                weight, paths = w, n
-            elif w == weight:
-                paths += n
-        ranked.append(Ranked(candidate, total, weight, paths))
+        built = list(circuits(candidate))
+        text = tuple(str(circuit) for circuit in built)
+        if text not in seen:
+            total, weight, paths = 0.0, math.inf, 0
+            for circuit in built:
+                dem = circuit.detector_error_model(decompose_errors=True, ignore_decomposition_failures=True)
+                proxy, w, n = logical_proxy(dem)
+                total += proxy
+                if w < weight:
+                    weight, paths = w, n
+                elif w == weight:
+                    paths += n
+            seen[text] = (total, weight, paths)
+        ranked.append(Ranked(candidate, *seen[text]))
     ranked.sort(key=lambda r: (r.proxy, r.qubits))
     return ranked
 

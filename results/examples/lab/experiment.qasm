@@ -1,7 +1,7 @@
 OPENQASM 3.0;
 include "stdgates.inc";
 // codebench memory experiment: rotated_surface d=3, 3 rounds, Z basis
-// noise model: device scale 1 {"device": "Larkspur Aster-17 (current generation) [eac37f0f1453]"}
+// noise model: device scale 1 {"device": "Larkspur Aster-17 (current generation) [682d1e9eac55]"}
 // bit i of rec is measurement i; detectors and observables: see the description file (JSON)
 qubit a0;
 qubit a1;
