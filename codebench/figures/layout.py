@@ -1,0 +1,54 @@
+"""One layout pass per figure, kept for both files.
+
+A figure of one axes is laid out by :func:`settle` in a single measuring pass: the axes' tight box
+(tick labels, axis labels, titles) is measured once and the axes placed so that box fills the figure
+up to :data:`PAD` from each edge, less the room a legend below the axes takes (:func:`fit_axes`).
+matplotlib's constrained layout measured the same box twice per layout and ran again for a legend
+below; it remains for figures of several axes. After :func:`settle` the figure has no layout engine,
+so the drawing :func:`~.canvas.save` writes as PNG and SVG does not lay it out again.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from matplotlib.axes import Axes
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.layout_engine import ConstrainedLayoutEngine
+
+#: Space kept free along the figure's edges, in inches.
+PAD = 5 / 72
+
+
+def settle(fig: Figure) -> Any:
+    """Lay ``fig`` out now, once, and keep that layout; return the renderer (idempotent)."""
+    canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
+    renderer = canvas.get_renderer()  # type: ignore[no-untyped-call]
+    engine = fig.get_layout_engine()
+    if isinstance(engine, ConstrainedLayoutEngine):
+        if len(fig.axes) == 1:
+            fig.set_layout_engine("none")
+            fit_axes(fig, fig.axes[0], renderer)
+        else:
+            engine.execute(fig)
+            fig.set_layout_engine("none")
+    return renderer
+
+
+def fit_axes(fig: Figure, ax: Axes, renderer: Any, bottom: float = 0.0) -> None:
+    """Place ``ax`` so that it and everything around it fill ``fig`` up to :data:`PAD` from each edge,
+    with ``bottom`` pixels left free under it (for a legend there)."""
+    width, height = fig.bbox.width, fig.bbox.height
+    pad = PAD * fig.dpi
+    frame = ax.get_window_extent(renderer)
+    tight = ax.get_tightbbox(renderer, for_layout_only=True)
+    if tight is None:
+        return
+    x0 = pad + max(0.0, frame.x0 - tight.x0)
+    x1 = width - pad - max(0.0, tight.x1 - frame.x1)
+    y0 = pad + bottom + max(0.0, frame.y0 - tight.y0)
+    y1 = height - pad - max(0.0, tight.y1 - frame.y1)
+    if x1 - x0 < 0.2 * width or y1 - y0 < 0.2 * height:  # far too crowded to fit: leave it as it was
+        return
+    ax.set_position((x0 / width, y0 / height, (x1 - x0) / width, (y1 - y0) / height))
