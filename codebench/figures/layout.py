@@ -10,6 +10,7 @@ so the drawing :func:`~.canvas.save` writes as PNG and SVG does not lay it out a
 
 from __future__ import annotations
 
+import weakref
 from typing import Any
 
 from matplotlib.axes import Axes
@@ -36,19 +37,29 @@ def settle(fig: Figure) -> Any:
     return renderer
 
 
+#: Per axes, the room its surroundings take on each side (left, right, below, above) in pixels, as
+#: measured by the figure's one layout pass; reused when a legend below the axes asks for room.
+_AROUND: weakref.WeakKeyDictionary[Axes, tuple[float, float, float, float]] = weakref.WeakKeyDictionary()
+
+
 def fit_axes(fig: Figure, ax: Axes, renderer: Any, bottom: float = 0.0) -> None:
     """Place ``ax`` so that it and everything around it fill ``fig`` up to :data:`PAD` from each edge,
-    with ``bottom`` pixels left free under it (for a legend there)."""
+    with ``bottom`` pixels left free under it (for a legend there). The surroundings are measured once
+    per axes; a second call reuses that measurement."""
+    around = _AROUND.get(ax)
+    if around is None:
+        frame = ax.get_window_extent(renderer)
+        tight = ax.get_tightbbox(renderer, for_layout_only=True)
+        if tight is None:
+            return
+        around = (max(0.0, frame.x0 - tight.x0), max(0.0, tight.x1 - frame.x1), max(0.0, frame.y0 - tight.y0),
+                  max(0.0, tight.y1 - frame.y1))
+        _AROUND[ax] = around
     width, height = fig.bbox.width, fig.bbox.height
     pad = PAD * fig.dpi
-    frame = ax.get_window_extent(renderer)
-    tight = ax.get_tightbbox(renderer, for_layout_only=True)
-    if tight is None:
-        return
-    x0 = pad + max(0.0, frame.x0 - tight.x0)
-    x1 = width - pad - max(0.0, tight.x1 - frame.x1)
-    y0 = pad + bottom + max(0.0, frame.y0 - tight.y0)
-    y1 = height - pad - max(0.0, tight.y1 - frame.y1)
+    left, right, below, above = around
+    x0, x1 = pad + left, width - pad - right
+    y0, y1 = pad + bottom + below, height - pad - above
     if x1 - x0 < 0.2 * width or y1 - y0 < 0.2 * height:  # far too crowded to fit: leave it as it was
         return
     ax.set_position((x0 / width, y0 / height, (x1 - x0) / width, (y1 - y0) / height))
