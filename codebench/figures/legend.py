@@ -130,7 +130,7 @@ def place_labels(ax: Axes, labels: Sequence[Label], keep_off: Sequence[Any] = ()
         for dx, dy, ha, va in _AROUND:
             text = ax.annotate(label.text, (label.x, label.y), textcoords="offset points", xytext=(dx, dy), ha=ha,
                                va=va, fontsize=10.5, fontweight="bold", color=label.colour, zorder=6)
-            box = text.get_window_extent(renderer)
+            box = text.get_window_extent(renderer).padded(3)  # a little air between neighbours
             inside = (frame.x0 <= box.x0 and box.x1 <= frame.x1 and frame.y0 <= box.y0 and box.y1 <= frame.y1)
             covers = bool(((points[:, 0] >= box.x0) & (points[:, 0] <= box.x1) & (points[:, 1] >= box.y0)
                            & (points[:, 1] <= box.y1)).any()) if len(points) else False

@@ -210,8 +210,8 @@ def draw(inputs: LambdaInputs) -> Figure:
         obstacles.append((to_axes(ax, list(whole), list(lambda_curve(s.scale, s.lam, whole))), ALONG_CURVE))
         for d_need, target in s.projections:
             if d_need <= cap:
-                ax.plot([d_need], [target], linestyle="none", marker="o", markersize=7, markerfacecolor="white",
-                        markeredgecolor=colour, markeredgewidth=1.8, zorder=5)
+                ax.plot([d_need], [target], linestyle="none", marker="X", markersize=9, markerfacecolor=colour,
+                        markeredgecolor="white", markeredgewidth=0.8, zorder=5)
                 obstacles.append((markers(ax, [d_need], [target]), MARKER))
                 labels.append(Label(d_need, target, f"d = {d_need}", colour))
     transform = ax.get_yaxis_transform()
@@ -230,8 +230,8 @@ def draw(inputs: LambdaInputs) -> Figure:
                Line2D([], [], color=MUTED, linewidth=1.6, linestyle=(0, (4, 3))))
     key: list[tuple[Any, str]] = [(fit_key, "fit extrapolated (dashed), 95% band")]
     if any(d <= cap for _, d, _ in needs):
-        key.append((Line2D([], [], linestyle="none", marker="o", markersize=7, markerfacecolor="white",
-                           markeredgecolor=INK, markeredgewidth=1.8), "distance a target needs"))
+        key.append((Line2D([], [], linestyle="none", marker="X", markersize=9, markerfacecolor=INK,
+                           markeredgecolor="white", markeredgewidth=0.8), "distance a target needs"))
     key += count_entries([s.failures for s in series])
     for n, s in enumerate(series):
         far = [f"{d} ({sci(t)})" for m, d, t in beyond if m == n]
