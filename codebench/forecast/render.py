@@ -34,6 +34,7 @@ from matplotlib.ticker import MaxNLocator
 from codebench.figures.canvas import log_axis, save, titles
 from codebench.figures.marks import lambda_band
 from codebench.figures.style import (
+    DPI,
     FEW_FAILURES,
     FIT_BAND_ALPHA,
     INK,
@@ -227,7 +228,7 @@ def forecast_figure(result: ForecastResult) -> Figure:
     """The two-panel forecast figure (see the module docstring)."""
     rows = result.distances
     side = [r for r in rows if r.method_kind in ("extrapolated", "stratified")]
-    fig = Figure(figsize=(11.0 if side else 6.4, 4.6), layout="constrained")
+    fig = Figure(figsize=(11.0 if side else 6.4, 4.6), dpi=DPI, layout="constrained")
     FigureCanvasAgg(fig)
     if side:
         left, right = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.25, 1.0]})
