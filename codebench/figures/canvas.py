@@ -20,6 +20,7 @@ from matplotlib.ticker import FuncFormatter, LogLocator
 
 from codebench.figures.data import Curve, spans_decades
 from codebench.figures.labels import wrap_family
+from codebench.figures.layout import freeze
 from codebench.figures.style import DPI, FIGSIZE, INK, MUTED, log_tick_label
 
 InputsT = TypeVar("InputsT")
@@ -142,7 +143,7 @@ def save(fig: Figure, png: Path, svg: Path, salt: str) -> None:
     """
     canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
     fig.canvas.draw()
-    fig.set_layout_engine("none")  # keep the positions just computed for the SVG
+    freeze(fig)  # keep the positions just computed for the SVG (and no unseen extra draw before it)
     no_software: dict[str, Any] = {"Software": None}  # None drops the key (no version in the bytes)
     matplotlib.image.imsave(png, canvas.renderer.buffer_rgba(), format="png", origin="upper", dpi=fig.dpi,
                             metadata=no_software)

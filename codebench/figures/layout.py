@@ -4,8 +4,9 @@ A figure of one axes is laid out by :func:`settle` in a single measuring pass: t
 (tick labels, axis labels, titles) is measured once and the axes placed so that box fills the figure
 up to :data:`PAD` from each edge, less the room a legend below the axes takes (:func:`fit_axes`).
 matplotlib's constrained layout measured the same box twice per layout and ran again for a legend
-below; it remains for figures of several axes. After :func:`settle` the figure has no layout engine,
-so the drawing :func:`~.canvas.save` writes as PNG and SVG does not lay it out again.
+below; it remains for figures of several axes. After :func:`settle` the figure has no layout engine
+(:func:`freeze`), so the drawing :func:`~.canvas.save` writes as PNG and SVG does not lay it out again,
+and saving the SVG does not draw it an extra time.
 """
 
 from __future__ import annotations
@@ -29,12 +30,19 @@ def settle(fig: Figure) -> Any:
     engine = fig.get_layout_engine()
     if isinstance(engine, ConstrainedLayoutEngine):
         if len(fig.axes) == 1:
-            fig.set_layout_engine("none")
             fit_axes(fig, fig.axes[0], renderer)
         else:
             engine.execute(fig)
-            fig.set_layout_engine("none")
+        freeze(fig)
     return renderer
+
+
+def freeze(fig: Figure) -> None:
+    """Keep ``fig``'s layout as it is: no layout engine at all. (With any engine, even matplotlib's
+    ``"none"`` placeholder, ``savefig`` draws the whole figure once more, unseen, before saving it.)"""
+    fig.set_layout_engine(None)
+    if fig.get_layout_engine() is not None:  # the rc settings asked for a layout: keep one that does nothing
+        fig.set_layout_engine("none")
 
 
 #: Per axes, the room its surroundings take on each side (left, right, below, above) in pixels, as
