@@ -10,16 +10,22 @@ records:
 - ``failure_vs_p__<family>`` (:mod:`.per_round`): the whole experiment's
   failure probability, with the threshold estimate (finite-size scaling if
   there is one, else a crossing) and its interval: only here;
-- ``lambda_vs_d__<family>__p<p>`` (:mod:`.suppression`): logical error per
-  round against distance at one rate, the fit eps_d = C / Lambda^((d+1)/2)
-  extended to the distance the smallest target needs, and the targets;
+- ``lambda_vs_d__<family>`` (:mod:`.suppression`): logical error per round
+  against distance at up to three representative rates, each fit
+  eps_d = C / Lambda^((d+1)/2) with its 95% band, extended to the distance
+  the smallest target needs, and the targets (every rate's fit is in the
+  report's tables);
 - ``decoders_vs_p__<group>`` (:mod:`.decoders`): decoders side by side where a
   group of points (code, basis, noise, rounds) was decoded several ways.
 
-Every distance has one colour in every figure (:func:`distance_colour`). Each
+Every distance has one colour in every figure (:func:`distance_colour`; the
+suppression figure, whose x axis is the distance, colours its rates instead).
+Points are marked alike everywhere (:mod:`.marks`): capped 95% interval bars,
+hollow below 10 failures, an open triangle for none. Each
 figure is first planned (:class:`~.canvas.FigurePlan`: names and the inputs
 it is drawn from), then drawn only if the files of an earlier run are not
-current (:mod:`.manifest`), and drawn once for both files (:func:`.canvas.save`).
+current (:mod:`.manifest`), laid out once (:mod:`.layout`) and drawn once for
+both files (:func:`.canvas.save`).
 Labels come from the noise model's declared rate meaning (:mod:`.labels`).
 Nothing touches pyplot's global state. A figure whose data are missing is
 skipped, never drawn empty.

@@ -1,6 +1,6 @@
 """``decoders_vs_p__<group>``: decoders side by side where the same points were decoded several ways.
 
-Colour is the distance, line style and marker the decoder; bars are 95% intervals.
+Colour is the distance, line style and marker the decoder; bars are 95% intervals; open markers: fewer than 10 failures.
 """
 
 from __future__ import annotations
@@ -8,16 +8,16 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any, Sequence
 
-import numpy as np
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
 from codebench.analysis.families import Family
-from codebench.figures.canvas import FigurePlan, rate_axes, titles, zero_marker
+from codebench.figures.canvas import FigurePlan, rate_axes, titles
 from codebench.figures.data import Curve, curves, y_range
 from codebench.figures.labels import family_slug, family_title, rate_meaning
 from codebench.figures.legend import LegendGroup, curve_obstacles, place_legends
+from codebench.figures.marks import count_entries, interval_points
 from codebench.figures.style import INK, decoder_style, distance_colour
 
 KIND = "decoders_vs_p"
@@ -51,7 +51,7 @@ def plan(group: list[Family]) -> FigurePlan[DecodersInputs] | None:
     title = family_title(group[0], with_decoder=False)
     inputs = DecodersInputs(per_decoder, limits, rate_meaning(group[0].noise).axis_label, title)
     caption = (f"Decoders compared for {title}: colour is the distance, line style and marker the decoder "
-               f"({', '.join(decoders)}); bars are 95% intervals.")
+               f"({', '.join(decoders)}); bars are 95% intervals; open markers: fewer than 10 failures.")
     return FigurePlan(f"{KIND}__{family_slug(group[0], with_decoder=False)}", KIND, title, caption, inputs, draw)
 
 
@@ -65,15 +65,8 @@ def draw(inputs: DecodersInputs) -> Figure:
             decoders.append(decoder)
         style, marker = decoder_style(decoders.index(decoder))
         for curve in decoder_curves:
-            colour = distance_colour(curve.distance)
-            seen = curve.rate > 0
-            low = np.where(np.isfinite(curve.low), np.maximum(curve.low, y_low), y_low)
-            ax.errorbar(curve.p[seen], curve.rate[seen],
-                        yerr=[curve.rate[seen] - low[seen], curve.high[seen] - curve.rate[seen]],
-                        color=colour, linestyle=style, marker=marker, markersize=6.5, markeredgecolor="white",
-                        markeredgewidth=0.7, elinewidth=1.0, capsize=2.5, zorder=3)
-            if (~seen).any():
-                zero_marker(ax, list(curve.p[~seen]), list(curve.high[~seen]), colour)
+            interval_points(ax, curve.p, curve.rate, curve.low, curve.high, curve.failures,
+                            distance_colour(curve.distance), floor=y_low, marker=marker, linestyle=style)
     ax.set_ylim(y_low, axes.y_high)
     ax.set_xlabel(inputs.x_label)
     ax.set_ylabel("logical error per round")
@@ -82,7 +75,9 @@ def draw(inputs: DecodersInputs) -> Figure:
     colours: list[Any] = [Patch(facecolor=distance_colour(d), edgecolor="none") for d in distances]
     styles: list[Any] = [Line2D([], [], color=INK, linestyle=decoder_style(i)[0], marker=decoder_style(i)[1],
                                 markersize=6.5) for i in range(len(decoders))]
+    counts = count_entries([curve.failures for curve in all_curves])
     place_legends(ax, [LegendGroup(colours, [f"d = {d}" for d in distances], "distance"),
-                       LegendGroup(styles, decoders, "decoder", {"handlelength": 3.2})],
+                       LegendGroup(styles + [h for h, _ in counts], decoders + [t for _, t in counts], "decoder",
+                                   {"handlelength": 3.2})],
                   curve_obstacles(ax, all_curves))
     return fig

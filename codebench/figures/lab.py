@@ -21,7 +21,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from codebench.figures.canvas import FigureFile, new_figure, save, titles
-from codebench.figures.style import INK, STYLE
+from codebench.figures.style import INK, INTERVAL, STYLE
 from codebench.lab.departures import Departures
 from codebench.lab.graph import BOUNDARY
 
@@ -46,7 +46,8 @@ def detection_fractions(result: Departures) -> Figure:
         members = [k for k, r in enumerate(rounds) if r == rnd]
         if n % 2:
             ax.axvspan(min(members) - 0.5, max(members) + 0.5, color="#eceae2", zorder=0, lw=0)
-    ax.errorbar(x, fraction, yerr=[low, high], fmt="o", ms=3.5, color=MEASURED, label="measured (95% interval)")
+    ax.errorbar(x, fraction, yerr=[low, high], fmt="o", ms=3.5, color=MEASURED, label="measured (95% interval)",
+                **INTERVAL)
     ax.plot(x, [r.predicted for r in rows], "_", ms=9, mew=2, color=MODEL, label="model prediction")
     ax.set_xlabel("detector (in order; shaded bands alternate rounds)")
     ax.set_ylabel("detection-event fraction (per shot)")

@@ -13,10 +13,11 @@ from typing import Any, Literal, Sequence
 
 import numpy as np
 from matplotlib.axes import Axes
-from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.transforms import Bbox
 
 from codebench.figures.data import Curve
+from codebench.figures.layout import PAD, fit_axes, settle
 
 #: Obstacle weights: a data marker, a point along a curve, along a band edge, along a reference line.
 MARKER, ALONG_CURVE, ALONG_BAND, ALONG_GUIDE = 3.0, 0.2, 0.04, 0.01
@@ -69,6 +70,8 @@ def curve_obstacles(ax: Axes, curves: Sequence[Curve]) -> list[Obstacle]:
         p, rate = list(curve.p[seen]), list(curve.rate[seen])
         out.append((markers(ax, p, rate), MARKER))
         out.append((to_axes(ax, p, rate), ALONG_CURVE))
+        # The caps of the 95% intervals are markers too (a legend must not hide them).
+        out.append((markers(ax, p + p, list(curve.high[seen]) + list(curve.low[seen])), MARKER))
         out.append((to_axes(ax, p, list(curve.high[seen])), ALONG_BAND))
         out.append((to_axes(ax, p, list(curve.low[seen])), ALONG_BAND))
         if (~seen).any():
@@ -88,6 +91,76 @@ def _score(box: Any, ncol: int, obstacles: Sequence[Obstacle], taken: Sequence[A
     return score
 
 
+def marker_points(ax: Axes) -> np.ndarray:
+    """Display coordinates of every marker drawn on ``ax``."""
+    points = [np.asarray(line.get_xydata(), dtype=float) for line in ax.lines
+              if line.get_visible() and line.get_marker() not in (None, "None", "", " ")]
+    if not points:
+        return np.empty((0, 2))
+    shown = np.asarray(ax.transData.transform(np.vstack(points)))
+    return shown[np.all(np.isfinite(shown), axis=1)]
+
+
+@dataclass(frozen=True)
+class Label:
+    """A short text next to a data point (x, y), placed only where it covers nothing."""
+
+    x: float
+    y: float
+    text: str
+    colour: str
+
+
+#: Where a label may sit around its point: (dx, dy) in points, alignment.
+_AROUND = ((7, 5, "left", "bottom"), (7, -5, "left", "top"), (-7, 5, "right", "bottom"), (-7, -5, "right", "top"))
+
+
+def place_labels(ax: Axes, labels: Sequence[Label], keep_off: Sequence[Any] = ()) -> list[Any]:
+    """Put each label beside its point where it stays inside the axes and covers no marker, other label
+    or artist of ``keep_off``; a label with no free spot is left out (thinned). Returns those placed."""
+    fig = ax.get_figure(root=True)
+    if not labels or not isinstance(fig, Figure):
+        return []
+    renderer = settle(fig)
+    frame = ax.get_window_extent(renderer)
+    taken = [artist.get_window_extent(renderer) for artist in keep_off]
+    points = marker_points(ax)
+    placed: list[Any] = []
+    for label in labels:
+        for dx, dy, ha, va in _AROUND:
+            text = ax.annotate(label.text, (label.x, label.y), textcoords="offset points", xytext=(dx, dy), ha=ha,
+                               va=va, fontsize=10.5, fontweight="bold", color=label.colour, zorder=6)
+            box = text.get_window_extent(renderer).padded(3)  # a little air between neighbours
+            inside = (frame.x0 <= box.x0 and box.x1 <= frame.x1 and frame.y0 <= box.y0 and box.y1 <= frame.y1)
+            covers = bool(((points[:, 0] >= box.x0) & (points[:, 0] <= box.x1) & (points[:, 1] >= box.y0)
+                           & (points[:, 1] <= box.y1)).any()) if len(points) else False
+            if inside and not covers and not any(box.overlaps(other) for other in taken):
+                taken.append(box)
+                placed.append(text)
+                break
+            text.remove()
+    return placed
+
+
+def _spot_boxes(ax: Axes, renderer: Any, group: LegendGroup, ncol: int) -> dict[Spot, Bbox]:
+    """The box (axes fractions) a legend of ``group`` in ``ncol`` columns takes at each spot.
+
+    One legend is made and measured; the other spots follow from its size and its padding from the
+    corner (matplotlib pads every side alike and centres the centre spots), instead of one legend each.
+    """
+    legend = ax.legend(group.handles, group.labels, loc="upper left", ncols=ncol, title=group.title, **group.options)
+    box = legend.get_window_extent(renderer).transformed(ax.transAxes.inverted())
+    legend.remove()
+    width, height, pad_x, pad_y = box.width, box.height, box.x0, 1.0 - box.y1
+    left, right, centre_x = pad_x, 1.0 - pad_x - width, 0.5 - width / 2
+    top, bottom, centre_y = 1.0 - pad_y - height, pad_y, 0.5 - height / 2
+    corners: dict[Spot, tuple[float, float]] = {
+        "upper left": (left, top), "lower right": (right, bottom), "upper right": (right, top),
+        "lower left": (left, bottom), "center right": (right, centre_y), "center left": (left, centre_y),
+        "upper center": (centre_x, top), "lower center": (centre_x, bottom)}
+    return {spot: Bbox.from_bounds(x0, y0, width, height) for spot, (x0, y0) in corners.items()}
+
+
 def place_legends(ax: Axes, groups: Sequence[LegendGroup], obstacles: Sequence[Obstacle],
                   avoid: Sequence[Any] = ()) -> None:
     """Legends inside the axes where they cover the least of ``obstacles``, one box per group.
@@ -100,41 +173,40 @@ def place_legends(ax: Axes, groups: Sequence[LegendGroup], obstacles: Sequence[O
     fig = ax.get_figure(root=True)
     if not groups or not isinstance(fig, Figure):
         return
-    canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
-    fig.draw_without_rendering()  # settles the layout, so axes fractions are final
-    renderer = canvas.get_renderer()  # type: ignore[no-untyped-call]
+    renderer = settle(fig)  # axes fractions are final from here on
     taken = [artist.get_window_extent(renderer).transformed(ax.transAxes.inverted()) for artist in avoid]
     below: list[LegendGroup] = []
     for group in groups:
-        best: tuple[float, Spot, int] | None = None
+        best: tuple[float, Spot, int, Bbox] | None = None
         for ncol in (1, 2) if len(group.handles) >= 5 else (1,):
-            for spot in _SPOTS:
-                legend = ax.legend(group.handles, group.labels, loc=spot, ncols=ncol, title=group.title,
-                                   **group.options)
-                box = legend.get_window_extent(renderer).transformed(ax.transAxes.inverted())
-                legend.remove()
+            for spot, box in _spot_boxes(ax, renderer, group, ncol).items():
                 score = _score(box, ncol, obstacles, taken)
                 if best is None or score < best[0] - 1e-9:
-                    best = (score, spot, ncol)
+                    best = (score, spot, ncol, box)
         if best is None or best[0] >= _HIDES_A_MARKER:
             below.append(group)
             continue
         legend = ax.legend(group.handles, group.labels, loc=best[1], ncols=best[2], title=group.title,
                            **group.options)
         ax.add_artist(legend)  # keeps it when the next group's legend is made
-        taken.append(legend.get_window_extent(renderer).transformed(ax.transAxes.inverted()))
+        taken.append(best[3])
     if below:
-        _legend_below(fig, renderer, below)
+        _legend_below(ax, renderer, below)
 
 
-def _legend_below(fig: Figure, renderer: Any, groups: Sequence[LegendGroup]) -> None:
-    """One legend under the axes, in as many columns as fit the figure's width."""
+def _legend_below(ax: Axes, renderer: Any, groups: Sequence[LegendGroup]) -> None:
+    """One legend under the axes, in as many columns as fit the figure's width; the axes make room."""
+    fig = ax.get_figure(root=True)
+    assert isinstance(fig, Figure)
     handles = [h for g in groups for h in g.handles]
     labels = [label for g in groups for label in g.labels]
     options = {key: value for g in groups for key, value in g.options.items()}
-    width = fig.get_window_extent(renderer).width
+    width = fig.bbox.width
     for ncol in (4, 3, 2, 1):
-        legend = fig.legend(handles, labels, loc="outside lower center", ncols=min(ncol, len(handles)), **options)
-        if legend.get_window_extent(renderer).width <= 0.96 * width or ncol == 1:
-            return
+        legend = fig.legend(handles, labels, loc="lower center", bbox_to_anchor=(0.5, PAD * fig.dpi / fig.bbox.height),
+                            ncols=min(ncol, len(handles)), borderaxespad=0.0, **options)
+        box = legend.get_window_extent(renderer)
+        if box.width <= 0.96 * width or ncol == 1:
+            break
         legend.remove()
+    fit_axes(fig, ax, renderer, bottom=box.height + 6 * fig.dpi / 72)

@@ -24,7 +24,7 @@ from matplotlib.ticker import MaxNLocator
 
 from codebench.analysis import threshold_applies
 from codebench.analysis.families import Family
-from codebench.figures.canvas import FigurePlan, rate_axes, titles, zero_marker
+from codebench.figures.canvas import FigurePlan, rate_axes, titles
 from codebench.figures.data import (
     Curve,
     chosen_threshold,
@@ -40,20 +40,22 @@ from codebench.figures.labels import (
     rate_meaning,
     rate_noun,
 )
+from codebench.figures.layout import settle
 from codebench.figures.legend import (
     ALONG_GUIDE,
     MARKER,
     LegendGroup,
     Obstacle,
     curve_obstacles,
+    marker_points,
     markers,
     place_legends,
     to_axes,
 )
+from codebench.figures.marks import count_entries, interval_points
 from codebench.figures.style import (
     GUIDE_INK,
     INK,
-    MUTED,
     PANEL,
     THRESHOLD_INK,
     THRESHOLD_SHADE,
@@ -109,7 +111,7 @@ def plan(family: Family, analysis: dict[str, Any]) -> FigurePlan[PerRoundInputs]
         float(record["threshold"]), finite(record.get("low")), finite(record.get("high")), method_name(record),
         "per-round crossing")
     title = family_title(family)
-    caption = f"Logical error per round against {rate_noun(rate, article=True)} for {title}; bands are 95% intervals."
+    caption = f"Logical error per round against {rate_noun(rate, article=True)} for {title}; bars are 95% intervals; open markers: fewer than 10 failures."
     if record is not None:
         caption += (f" The per-round curves of d = {'/'.join(str(d) for d in record.get('distances') or [])} cross"
                     f" at {num(record['threshold'])} [{num(record.get('low'))}, {num(record.get('high'))}];"
@@ -132,7 +134,7 @@ def whole_plan(family: Family, analysis: dict[str, Any]) -> FigurePlan[PerRoundI
         float(record["threshold"]), finite(record.get("low")), finite(record.get("high")), method_name(record))
     title = family_title(family)
     caption = (f"Probability that the whole memory experiment fails against {rate_noun(rate, article=True)} for "
-               f"{title}; bands are 95% intervals.")
+               f"{title}; bars are 95% intervals; open markers: fewer than 10 failures.")
     caption += (" No threshold estimate (see the notes)." if record is None else
                 f" Threshold estimate ({method_name(record, short=False)}): {num(record['threshold'])}"
                 f" [{num(record.get('low'))}, {num(record.get('high'))}].")
@@ -146,23 +148,8 @@ def draw(inputs: PerRoundInputs) -> Figure:
     drawn = list(inputs.curves)
     axes = rate_axes(drawn, inputs.limits)
     fig, ax, y_low, y_high = axes.fig, axes.ax, axes.y_low, axes.y_high
-    any_zero = False
-    for curve in drawn:
-        colour = distance_colour(curve.distance)
-        seen = curve.rate > 0
-        p_seen = curve.p[seen]
-        low = np.where(np.isfinite(curve.low[seen]), np.maximum(curve.low[seen], y_low), y_low)
-        high = np.where(np.isfinite(curve.high[seen]), curve.high[seen], curve.rate[seen])
-        if p_seen.size >= 2:
-            ax.fill_between(p_seen, low, high, color=colour, alpha=0.16, linewidth=0, zorder=1)
-        elif p_seen.size == 1:
-            ax.errorbar(p_seen, curve.rate[seen], yerr=[curve.rate[seen] - low, high - curve.rate[seen]],
-                        fmt="none", ecolor=colour, elinewidth=1.2, capsize=3, zorder=2)
-        ax.plot(p_seen, curve.rate[seen], color=colour, marker="o", markeredgecolor="white",
-                markeredgewidth=0.8, label=f"d = {curve.distance}", zorder=3)
-        if (~seen).any():
-            any_zero = True
-            zero_marker(ax, list(curve.p[~seen]), list(curve.high[~seen]), colour)
+    handles = [interval_points(ax, curve.p, curve.rate, curve.low, curve.high, curve.failures,
+                               distance_colour(curve.distance), floor=y_low, linestyle="-") for curve in drawn]
     ax.set_ylim(y_low, y_high)
     x_low, x_high = min(axes.all_p), max(axes.all_p)
     if axes.log_x:
@@ -177,21 +164,19 @@ def draw(inputs: PerRoundInputs) -> Figure:
         extra_entries, guide = _physical_guides(ax, inputs, xlim, axes.log_x, y_low, y_high)
         extra += extra_entries
         obstacles += guide
-    keep_clear: list[Any] = []
-    if inputs.threshold is not None:
-        entries, keep_clear, column = _draw_threshold(ax, inputs.threshold, xlim)
-        extra += entries
-        obstacles += column
     ax.set_xlim(*xlim)
     if not axes.log_x:
         ax.xaxis.set_major_locator(MaxNLocator(nbins=6))
-    if any_zero:
-        extra.append((Line2D([], [], linestyle="none", marker="v", markersize=7, markerfacecolor="white",
-                             markeredgecolor=MUTED, markeredgewidth=1.5), "0 failures: 95% upper end"))
     ax.set_xlabel(inputs.x_label)
     ax.set_ylabel(inputs.y_label)
     titles(ax, inputs.headline, inputs.subline)
-    handles, labels = ax.get_legend_handles_labels()
+    keep_clear: list[Any] = []
+    if inputs.threshold is not None:  # last: its label is placed in the settled layout
+        entries, keep_clear, column = _draw_threshold(ax, inputs.threshold, xlim)
+        extra += entries
+        obstacles += column
+    extra += count_entries([curve.failures for curve in drawn])
+    labels = [f"d = {curve.distance}" for curve in drawn]
     place_legends(ax, [LegendGroup(handles, labels), LegendGroup([h for h, _ in extra], [t for _, t in extra])],
                   curve_obstacles(ax, drawn) + obstacles, avoid=keep_clear)
     return fig
@@ -234,10 +219,7 @@ def _draw_threshold(ax: Axes, mark: ThresholdMark, xlim: tuple[float, float]
     if xlim[0] <= value <= xlim[1]:
         parts.append(ax.axvline(value, color=THRESHOLD_INK, linewidth=1.6, zorder=2))
         x_frac = float(ax.transAxes.inverted().transform(ax.transData.transform((value, 1.0)))[0])
-        right = x_frac < 0.6
-        text = ax.text(value, 0.025, f" {label} ", transform=ax.get_xaxis_transform(),
-                       ha="left" if right else "right", va="bottom", fontsize=11, color=THRESHOLD_INK, zorder=6,
-                       bbox={"boxstyle": "square,pad=0.2", "facecolor": PANEL, "edgecolor": "none", "alpha": 0.9})
+        text = _threshold_label(ax, value, f" {label} ", x_frac < 0.6)
         column = np.column_stack([np.full(40, x_frac), np.linspace(0, 1, 40)])
         return [(tuple(reversed(parts)), f"{mark.name}, 95% interval")], [text], [(column, ALONG_GUIDE * 5)]
     side = ">" if value > xlim[1] else "<"
@@ -246,3 +228,25 @@ def _draw_threshold(ax: Axes, mark: ThresholdMark, xlim: tuple[float, float]
     if parts:
         entries.append((parts[0], f"{mark.name} 95% interval"))
     return entries, [], []
+
+
+def _threshold_label(ax: Axes, value: float, label: str, right: bool) -> Any:
+    """The threshold's label beside its line, at the bottom of the axes or else at the top, where it covers
+    no marker (an interval's cap included); at the bottom if neither is free."""
+    fig = ax.get_figure(root=True)
+    renderer = settle(fig) if isinstance(fig, Figure) else None
+    points = marker_points(ax)
+    texts: list[Any] = []
+    for y, va in ((0.025, "bottom"), (0.975, "top")):
+        text = ax.text(value, y, label, transform=ax.get_xaxis_transform(), ha="left" if right else "right", va=va,
+                       fontsize=11, color=THRESHOLD_INK, zorder=6,
+                       bbox={"boxstyle": "square,pad=0.2", "facecolor": PANEL, "edgecolor": "none", "alpha": 0.9})
+        box = text.get_window_extent(renderer) if renderer is not None and len(points) else None
+        if box is None or not ((points[:, 0] >= box.x0) & (points[:, 0] <= box.x1) & (points[:, 1] >= box.y0)
+                               & (points[:, 1] <= box.y1)).any():
+            for other in texts:
+                other.remove()
+            return text
+        texts.append(text)
+    texts[1].remove()
+    return texts[0]

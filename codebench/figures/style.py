@@ -42,6 +42,16 @@ _EVEN_COLOURS = (
     "#e07a7a",  # 18
     "#9a9ea6",  # 20
 )
+#: Below this many failures a point is drawn hollow (its interval spans a factor of a few); the report's
+#: results table marks the same points.
+FEW_FAILURES = 10
+#: Rates compared on one figure (the suppression figure's representative p), lowest first: colour, marker.
+RATE_STYLES: tuple[tuple[str, str], ...] = (("#1d4e89", "o"), ("#c2571a", "s"), ("#3f7f3a", "^"),
+                                            ("#8e3b8a", "D"))
+#: Our interval mark: a vertical line with short caps (no shaded band around measured points).
+INTERVAL: dict[str, Any] = {"elinewidth": 1.1, "capsize": 3.0, "capthick": 1.1}
+#: Opacity of the 95% band around a fitted line.
+FIT_BAND_ALPHA = 0.16
 #: (line style, marker) per decoder, in the order decoders appear.
 DECODER_STYLES: tuple[tuple[Any, str], ...] = (
     ("-", "o"), ("--", "s"), (":", "^"), ("-.", "D"), ((0, (5, 1, 1, 1)), "v"))
@@ -98,6 +108,11 @@ def distance_colour(distance: int) -> str:
     if d % 2:
         return _ODD_COLOURS[max(0, (d - 3) // 2) % len(_ODD_COLOURS)]
     return _EVEN_COLOURS[max(0, (d - 2) // 2) % len(_EVEN_COLOURS)]
+
+
+def rate_style(index: int) -> tuple[str, str]:
+    """(colour, marker) of the ``index``-th rate of the suppression figure."""
+    return RATE_STYLES[index % len(RATE_STYLES)]
 
 
 def decoder_style(index: int) -> tuple[Any, str]:

@@ -32,12 +32,22 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
 from codebench.figures.canvas import log_axis, save, titles
-from codebench.figures.style import INK, MUTED, STYLE, TARGET_INK, distance_colour
+from codebench.figures.marks import lambda_band
+from codebench.figures.style import (
+    DPI,
+    FEW_FAILURES,
+    FIT_BAND_ALPHA,
+    INK,
+    INTERVAL,
+    MUTED,
+    STYLE,
+    TARGET_INK,
+    distance_colour,
+)
 from codebench.files import make_folder, write_atomically, write_text
 from codebench.forecast.details import ExtrapolatedDetails, StratifiedDetails
 from codebench.forecast.result import DistanceForecast, ForecastResult
 from codebench.results.export import speed_verdict
-from codebench.stats import Z95
 
 __all__ = ["CSV_COLUMNS", "forecast_table", "forecast_figure", "write_outputs"]
 
@@ -218,7 +228,7 @@ def forecast_figure(result: ForecastResult) -> Figure:
     """The two-panel forecast figure (see the module docstring)."""
     rows = result.distances
     side = [r for r in rows if r.method_kind in ("extrapolated", "stratified")]
-    fig = Figure(figsize=(11.0 if side else 6.4, 4.6), layout="constrained")
+    fig = Figure(figsize=(11.0 if side else 6.4, 4.6), dpi=DPI, layout="constrained")
     FigureCanvasAgg(fig)
     if side:
         left, right = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.25, 1.0]})
@@ -237,15 +247,16 @@ def forecast_figure(result: ForecastResult) -> Figure:
               ("stratified", True, "D", "white", "stratified, extrapolated in w"),
               ("extrapolated", False, "s", "white", "extrapolated from raised noise"))
     for kind, in_w, marker, face, label in styles:
-        sel = [(r.distance, band) for r in rows if r.method_kind == kind and _extrapolated_in_w(r) == in_w
-               and (band := _band(r.per_round_rate, r.low, r.high)) is not None]
-        if not sel:
-            continue
-        x = [d for d, _ in sel]
-        y = [v for _, (v, _, _) in sel]
-        err = [[v - lo for _, (v, lo, _) in sel], [hi - v for _, (v, _, hi) in sel]]
-        left.errorbar(x, y, yerr=err, fmt=marker, color=_COLOURS[0], mfc=face or _COLOURS[0], ms=7, capsize=4,
-                      label=label, zorder=3)
+        for few in (False, True):  # our marks: hollow below FEW_FAILURES failures, as in every figure
+            sel = [(r.distance, band) for r in rows if r.method_kind == kind and _extrapolated_in_w(r) == in_w
+                   and (r.failures < FEW_FAILURES) == few and (band := _band(r.per_round_rate, r.low, r.high))]
+            if not sel:
+                continue
+            x = [d for d, _ in sel]
+            y = [v for _, (v, _, _) in sel]
+            err = [[v - lo for _, (v, lo, _) in sel], [hi - v for _, (v, _, hi) in sel]]
+            left.errorbar(x, y, yerr=err, fmt=marker, color=_COLOURS[0], mfc="white" if few else face or _COLOURS[0],
+                          ms=7, label=f"{label}, < {FEW_FAILURES} failures" if few else label, zorder=3, **INTERVAL)
     flagged = [(r.distance, r.per_round_rate) for r in rows if r.flags and r.per_round_rate is not None]
     if flagged:
         left.plot([d for d, _ in flagged], [v for _, v in flagged], "o", ms=15, mfc="none",
@@ -263,17 +274,10 @@ def forecast_figure(result: ForecastResult) -> Figure:
         def line(d: float) -> float:
             return float(c / lam ** ((d + 1) / 2))
 
-        # 95% band of the fit: ln eps = ln C - ((d + 1) / 2) ln Lambda, var by the delta method from the
-        # covariance of (ln C, ln Lambda).
-        (v_c, cov), (_, v_l) = fit.log_cov[0][:2], fit.log_cov[1][:2]
-
-        def fit_band(d: float) -> tuple[float, float]:
-            half = (d + 1) / 2
-            spread = Z95 * math.sqrt(max(0.0, v_c + half * half * v_l - 2 * half * cov))
-            return line(d) * math.exp(-spread), line(d) * math.exp(spread)
-
-        left.fill_between(ds_line, [fit_band(d)[0] for d in ds_line], [fit_band(d)[1] for d in ds_line],
-                          color=_COLOURS[1], alpha=0.15, linewidth=0, label="fit, 95% band")
+        fit_band = lambda_band(c, lam, fit.log_cov, ds_line)  # the 95% band every Lambda fit carries
+        if fit_band is not None:
+            left.fill_between(ds_line, fit_band[0], fit_band[1], color=_COLOURS[1], alpha=FIT_BAND_ALPHA, linewidth=0,
+                              label="fit, 95% band")
 
         left.plot(inside, [line(d) for d in inside], "-", color=_COLOURS[1],
                   label=f"fit: Lambda = {lam:.3g} [{fit.lam_low:.3g}, {fit.lam_high:.3g}]")

@@ -7,6 +7,7 @@ from typing import Any
 import pandas as pd
 
 from codebench.figures import chosen_threshold
+from codebench.figures.style import FEW_FAILURES as FIGURE_FEW_FAILURES
 from codebench.report.blocks import (
     DASH,
     Caution,
@@ -23,7 +24,7 @@ from codebench.report.run import incomplete
 from codebench.results.store import UNLISTED
 
 #: Points with fewer failures than this are listed under the cautions.
-FEW_FAILURES = 10
+FEW_FAILURES = FIGURE_FEW_FAILURES  # one threshold: the figures draw these points hollow
 #: Distances up to this are "small" for the finite-size caution on crossings.
 SMALL_DISTANCE = 5
 #: Points whose whole-experiment failure probability exceeds this have a near-saturated per-round rate.

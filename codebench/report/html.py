@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import Any
 
 from codebench.api import versions
+from codebench.figures.marks import MARKS_NOTE
 from codebench.report.blocks import Badge, Caution, Cell, Table
 from codebench.report.content import Report
 
@@ -150,15 +151,18 @@ _FIGURE_KINDS = (
      "One curve per distance; the threshold estimate, from these curves, with its interval."),
     ("decoders_vs_p", "Decoders compared", "Colour: distance; line style and marker: decoder."),
     ("lambda_vs_d", "Suppression with distance",
-     "At each p with a \u039b fit: the points, the fit, the targets and the distance each needs."),
+     "One figure per family, at up to three representative p: the points, the \u039b fit with its 95% band "
+     "(dashed where extrapolated), the targets and the distance each needs. Every p's fit is in the "
+     "\u039b and projection tables under Fits."),
 )
+
 
 
 def _figures(report: Report) -> str:
     if not report.figures:
         return ('<p class="intro">No figures: a figure needs a family of points with at least two distances '
                 "(see the notes).</p>")
-    parts = []
+    parts = [f'<p class="intro">{esc(MARKS_NOTE)}</p>']
     known = {kind for kind, _, _ in _FIGURE_KINDS}
     kinds = list(_FIGURE_KINDS) + [(k, k, "") for k in sorted({f.kind for f in report.figures} - known)]
     for kind, title, intro in kinds:

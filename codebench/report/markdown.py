@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from codebench.figures.marks import MARKS_NOTE
 from codebench.report.blocks import Badge, Cell, Table
 from codebench.report.content import Report
 
@@ -45,6 +46,7 @@ def markdown(report: Report) -> str:
     out += ["", f"## {speed.title}", "", speed.intro, "", md_table(speed)]
     out += ["", "## Figures", ""]
     if report.figures:
+        out += [MARKS_NOTE, ""]
         for fig in report.figures:
             out += [f"![{fig.title}](../figures/{fig.png.name})", "",
                     f"{fig.caption} (`{fig.png.name}`, `{fig.svg.name}`)", ""]
