@@ -115,7 +115,8 @@ class Label:
 _AROUND = ((7, 5, "left", "bottom"), (7, -5, "left", "top"), (-7, 5, "right", "bottom"), (-7, -5, "right", "top"))
 
 
-def place_labels(ax: Axes, labels: Sequence[Label], keep_off: Sequence[Any] = ()) -> list[Any]:
+def place_labels(ax: Axes, labels: Sequence[Label], keep_off: Sequence[Any] = (), fontsize: float = 10.5,
+                 fontweight: str = "bold") -> list[Any]:
     """Put each label beside its point where it stays inside the axes and covers no marker, other label
     or artist of ``keep_off``; a label with no free spot is left out (thinned). Returns those placed."""
     fig = ax.get_figure(root=True)
@@ -129,7 +130,7 @@ def place_labels(ax: Axes, labels: Sequence[Label], keep_off: Sequence[Any] = ()
     for label in labels:
         for dx, dy, ha, va in _AROUND:
             text = ax.annotate(label.text, (label.x, label.y), textcoords="offset points", xytext=(dx, dy), ha=ha,
-                               va=va, fontsize=10.5, fontweight="bold", color=label.colour, zorder=6)
+                               va=va, fontsize=fontsize, fontweight=fontweight, color=label.colour, zorder=6)
             box = text.get_window_extent(renderer).padded(3)  # a little air between neighbours
             inside = (frame.x0 <= box.x0 and box.x1 <= frame.x1 and frame.y0 <= box.y0 and box.y1 <= frame.y1)
             covers = bool(((points[:, 0] >= box.x0) & (points[:, 0] <= box.x1) & (points[:, 1] >= box.y0)

@@ -24,7 +24,8 @@ from codebench.stats import Z95
 #: How every figure marks its points, in words (the report says it once above its figures).
 MARKS_NOTE = (f"Every point carries its 95% interval as a capped bar; a hollow marker has fewer than {FEW_FAILURES} "
               "failures (the results table marks the same points), an open downward triangle none (drawn at the "
-              "interval's upper end). Fitted lines carry their 95% band.")
+              "interval's upper end); small numbers beside points in the error-against-p figures are the failures "
+              "behind them. Fitted lines carry their 95% band.")
 
 
 def zero_marker(ax: Axes, x: Sequence[float], y: Sequence[float], colour: str) -> None:

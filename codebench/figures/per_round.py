@@ -44,11 +44,13 @@ from codebench.figures.layout import settle
 from codebench.figures.legend import (
     ALONG_GUIDE,
     MARKER,
+    Label,
     LegendGroup,
     Obstacle,
     curve_obstacles,
     marker_points,
     markers,
+    place_labels,
     place_legends,
     to_axes,
 )
@@ -176,6 +178,13 @@ def draw(inputs: PerRoundInputs) -> Figure:
         extra += entries
         obstacles += column
     extra += count_entries([curve.failures for curve in drawn])
+    # The failures behind each point, beside it where there is room (thinned where points crowd).
+    counted = [Label(float(p), float(r), f"{int(f):,}", distance_colour(curve.distance))
+               for curve in drawn for p, r, f in zip(curve.p, curve.rate, curve.failures) if r > 0]
+    shown = place_labels(ax, counted, keep_clear, fontsize=8.5, fontweight="normal")
+    if shown:
+        keep_clear = [*keep_clear, *shown]
+        extra.append((Line2D([], [], linestyle="none"), "small numbers: failures behind a point"))
     labels = [f"d = {curve.distance}" for curve in drawn]
     place_legends(ax, [LegendGroup(handles, labels), LegendGroup([h for h, _ in extra], [t for _, t in extra])],
                   curve_obstacles(ax, drawn) + obstacles, avoid=keep_clear)
