@@ -90,6 +90,7 @@ def _comparison_columns() -> list[Column[DecoderComparison]]:
         ("basis", lambda r: r.basis), ("noise", lambda r: r.noise), ("p", lambda r: r.p),
         ("first", lambda r: r.first), ("second", lambda r: r.second), ("shots", lambda r: r.shots),
         ("failures 1st", lambda r: r.first_failures), ("failures 2nd", lambda r: r.second_failures),
+        ("both", lambda r: r.both),
         ("only 1st", lambda r: r.first_only), ("only 2nd", lambda r: r.second_only),
         ("difference", lambda r: r.difference), ("95% low", lambda r: r.low), ("95% high", lambda r: r.high),
         ("unpaired low", lambda r: r.unpaired_low), ("unpaired high", lambda r: r.unpaired_high),

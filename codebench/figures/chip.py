@@ -17,7 +17,7 @@ from matplotlib.colors import LogNorm, Normalize
 from matplotlib.lines import Line2D
 from matplotlib.ticker import ScalarFormatter
 
-from codebench.figures.canvas import new_figure, save, titles
+from codebench.figures.canvas import new_figure, save
 from codebench.figures.style import INK, MUTED, STYLE, TARGET_INK
 from codebench.noise.calibration import Device
 
@@ -66,7 +66,7 @@ def write_chip_figure(device: Device, used: Sequence[str], used_pairs: Sequence[
         if high <= low:  # one value everywhere: a bar around it
             low, high = (low * 0.5, low * 1.5) if low > 0 else (low - 1.0, low + 1.0)
         norm: Normalize = LogNorm(min(positive), max(positive)) if spread > 20 else Normalize(low, high)
-        cmap = "viridis_r" if colour_key.endswith("_us") else "viridis"  # dark = worse either way
+        cmap = "viridis_r" if colour_key.endswith("_us") else "viridis"  # dark = better either way
         size = max(18.0, min(240.0, 5200.0 / max(1, len(geometry.nodes))))
         points = ax.scatter([coords[q][0] for q in alive], [coords[q][1] for q in alive], c=values, cmap=cmap,
                             norm=norm, s=size, linewidths=[2.2 if q in used_set else 0.5 for q in alive],
@@ -102,7 +102,9 @@ def write_chip_figure(device: Device, used: Sequence[str], used_pairs: Sequence[
             handles.append(Line2D([], [], color=TARGET_INK, linestyle=(0, (1, 1.5)), label="link between chips"))
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.0, -0.12), ncol=3, fontsize=8,
                   frameon=False)
-        titles(ax, headline, subline)
+        # Above the whole figure, not the axes: a headline wider than the (square) chip would make the
+        # layout narrow the chip to fit the text beside it.
+        fig.suptitle(f"{headline}\n{subline}", x=0.02, ha="left", fontsize=13, color=INK)
         png, svg = stem.with_suffix(".png"), stem.with_suffix(".svg")
         save(fig, png, svg, salt=stem.name)
     return png, svg

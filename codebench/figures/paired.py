@@ -70,7 +70,8 @@ def _plan(key: tuple[str, ...], rows: list[dict[str, Any]]) -> FigurePlan[Differ
                "in its own panel; both decoders decoded identical shots. Bold bars: paired 95% interval "
                "(Newcombe 1998, hybrid score for paired data); thin grey bars: the interval without the pairing "
                f"(as if each decoder had its own shots).{gain}")
-    stem = f"{KIND}__{safe('_'.join((study, code, basis, noise, first, 'vs', second)))}"
+    studies = study.replace(" + ", "_and_")  # two studies' points compared: both names, readable in a file name
+    stem = f"{KIND}__{safe('_'.join((studies, code, basis, noise, first, 'vs', second)))}"
     return FigurePlan(stem, KIND, title, caption, DifferenceInputs(first, second, subline, tuple(panels)), draw)
 
 

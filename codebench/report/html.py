@@ -150,6 +150,11 @@ _FIGURE_KINDS = (
     ("failure_vs_p", "Failure of the whole experiment against p",
      "One curve per distance; the threshold estimate, from these curves, with its interval."),
     ("decoders_vs_p", "Decoders compared", "Colour: distance; line style and marker: decoder."),
+    ("decoder_difference", "Decoders on the same shots",
+     "Two decoders' difference in failure probability (whole experiment), one panel per distance: the paired "
+     "95% interval (bold) beside the interval without the pairing (thin, grey); see the table under Fits."),
+    ("measured_vs_d", "Measured beside simulated",
+     "Simulated per-round error against distance with the points decoded from measured records beside it."),
     ("lambda_vs_d", "Suppression with distance",
      "One figure per family, at up to three representative p: the points, the \u039b fit with its 95% band "
      "(dashed where extrapolated), the targets and the distance each needs. Every p's fit is in the "
