@@ -432,7 +432,9 @@ def _assemble(context: Context, sampled: dict[str, list[Sampled]], device_file: 
         notes.append(f"no target distances: a constant Lambda is not supported ({problem}).")
     target_rows = targets(request.code, fit, request.targets, max(request.distances))
     for reason in dict.fromkeys(t.not_projected for t in target_rows if t.not_projected and problem is None):
-        notes.append(f"some targets are not projected: {reason}.")
+        held = sum(t.not_projected == reason for t in target_rows)
+        which = "no target is" if held == len(target_rows) else f"{held} of {len(target_rows)} targets are"
+        notes.append(f"{which} projected: {reason}.")
     if any(t.extrapolation for t in target_rows):
         notes.append(f"target distances beyond d = {max(request.distances)} extrapolate the Lambda fit; treat them "
                      "as order-of-magnitude projections.")
