@@ -11,6 +11,7 @@ from typing import Any, Sequence
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
+from matplotlib.ticker import MaxNLocator
 
 from codebench.analysis.families import Family
 from codebench.figures.canvas import FigurePlan, rate_axes, titles
@@ -69,6 +70,8 @@ def draw(inputs: DecodersInputs) -> Figure:
                             distance_colour(curve.distance), floor=y_low, marker=marker, linestyle=style)
     ax.set_ylim(y_low, axes.y_high)
     ax.set_xlabel(inputs.x_label)
+    if not axes.log_x:  # as on the per-round figure: a linear p axis with matplotlib's default crowds
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=6))
     ax.set_ylabel("logical error per round")
     titles(ax, "Decoders compared: logical error per round", inputs.subline)
     distances = sorted({curve.distance for curve in all_curves})
