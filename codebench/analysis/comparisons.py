@@ -93,7 +93,8 @@ def decoder_comparisons(frame: pd.DataFrame) -> tuple[DecoderComparison, ...]:
     records = frame.attrs.get(PAIRS_ATTR, ())
     if not records or frame.empty:
         return ()
-    present = {tuple(_plain(row[name]) for name in (*_ROW, "decoder")) for _, row in frame.iterrows()}
+    columns = [frame[name].map(_plain) for name in (*_ROW, "decoder")]
+    present = set(zip(*columns))
     kept = [r for r in records
             if all(tuple(_plain(r[name]) for name in _ROW) + (r.get(f"{which}_decoder") or r[which],) in present
                    for which in ("first", "second"))]
