@@ -112,7 +112,8 @@ class Label:
 
 
 #: Where a label may sit around its point: (dx, dy) in points, alignment.
-_AROUND = ((7, 5, "left", "bottom"), (7, -5, "left", "top"), (-7, 5, "right", "bottom"), (-7, -5, "right", "top"))
+_AROUND: tuple[tuple[int, int, Literal["left", "right"], Literal["bottom", "top"]], ...] = (
+    (7, 5, "left", "bottom"), (7, -5, "left", "top"), (-7, 5, "right", "bottom"), (-7, -5, "right", "top"))
 
 
 def place_labels(ax: Axes, labels: Sequence[Label], keep_off: Sequence[Any] = (), fontsize: float = 10.5,
@@ -127,18 +128,34 @@ def place_labels(ax: Axes, labels: Sequence[Label], keep_off: Sequence[Any] = ()
     taken = [artist.get_window_extent(renderer) for artist in keep_off]
     points = marker_points(ax)
     placed: list[Any] = []
+    scale = fig.dpi / 72.0
     for label in labels:
+        # Made and measured once, at the first spot; the other spots' boxes follow from its size.
+        first_dx, first_dy, first_ha, first_va = _AROUND[0]
+        text = ax.annotate(label.text, (label.x, label.y), textcoords="offset points", xytext=(first_dx, first_dy),
+                           ha=first_ha, va=first_va, fontsize=fontsize, fontweight=fontweight, color=label.colour,
+                           zorder=6)
+        measured = text.get_window_extent(renderer)
+        anchor_x, anchor_y = ax.transData.transform((label.x, label.y))
+        gap_x = measured.x0 - (anchor_x + first_dx * scale)
+        gap_y = measured.y0 - (anchor_y + first_dy * scale)
         for dx, dy, ha, va in _AROUND:
-            text = ax.annotate(label.text, (label.x, label.y), textcoords="offset points", xytext=(dx, dy), ha=ha,
-                               va=va, fontsize=fontsize, fontweight=fontweight, color=label.colour, zorder=6)
-            box = text.get_window_extent(renderer).padded(3)  # a little air between neighbours
+            x = anchor_x + dx * scale
+            y = anchor_y + dy * scale
+            x0 = x + gap_x if ha == "left" else x - measured.width - gap_x
+            y0 = y + gap_y if va == "bottom" else y - measured.height - gap_y
+            box = Bbox.from_bounds(x0, y0, measured.width, measured.height).padded(3)  # air between neighbours
             inside = (frame.x0 <= box.x0 and box.x1 <= frame.x1 and frame.y0 <= box.y0 and box.y1 <= frame.y1)
             covers = bool(((points[:, 0] >= box.x0) & (points[:, 0] <= box.x1) & (points[:, 1] >= box.y0)
                            & (points[:, 1] <= box.y1)).any()) if len(points) else False
             if inside and not covers and not any(box.overlaps(other) for other in taken):
+                text.xyann = (dx, dy)
+                text.set_horizontalalignment(ha)
+                text.set_verticalalignment(va)
                 taken.append(box)
                 placed.append(text)
                 break
+        else:
             text.remove()
     return placed
 

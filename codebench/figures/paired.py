@@ -12,14 +12,15 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
+from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.ticker import FuncFormatter
 
-from codebench.figures.canvas import FigurePlan, log_axis, new_figure
+from codebench.figures.canvas import FigurePlan, log_axis
 from codebench.figures.data import spans_decades
 from codebench.figures.labels import rate_meaning, safe
-from codebench.figures.style import GUIDE_INK, INK, MUTED, distance_colour
+from codebench.figures.style import DPI, GUIDE_INK, INK, MUTED, distance_colour
 
 KIND = "decoder_difference"
 #: Panels per row.
@@ -79,9 +80,14 @@ def draw(inputs: DifferenceInputs) -> Figure:
     count = len(inputs.panels)
     columns = min(COLUMNS, count)
     rows = math.ceil(count / columns)
-    fig, first_ax = new_figure()
-    fig.set_size_inches(max(7.0, 3.6 * columns), 1.0 + 3.4 * rows)
-    first_ax.remove()
+    width, height = max(7.0, 3.6 * columns), 2.0 + 3.2 * rows
+    # Fixed margins, in inches, instead of a layout engine: the panels' surroundings are alike and
+    # known (one y label on the left, the shared x label below, the title and key above), and the
+    # constrained layout cost more than drawing the panels.
+    fig = Figure(figsize=(width, height), dpi=DPI)
+    FigureCanvasAgg(fig)
+    fig.subplots_adjust(left=1.05 / width, right=1 - 0.15 / width, bottom=1.15 / height, top=1 - 1.0 / height,
+                        wspace=0.32, hspace=0.45)
     axes = fig.subplots(rows, columns, squeeze=False)
     for ax, panel in zip(axes.flat, inputs.panels):
         _panel(ax, panel)
@@ -89,13 +95,13 @@ def draw(inputs: DifferenceInputs) -> Figure:
         ax.set_visible(False)
     for ax in axes[:, 0]:
         ax.set_ylabel("difference in failure probability")
-    fig.supxlabel(inputs.panels[0].x_label, fontsize=12, color=INK)
+    fig.supxlabel(inputs.panels[0].x_label, y=0.5 / height, va="bottom", fontsize=12, color=INK)
     fig.suptitle(f"{inputs.first} minus {inputs.second}, decoded on the same shots\n{inputs.subline}",
-                 x=0.01, ha="left", fontsize=13, color=INK)
+                 x=0.1 / width, y=1 - 0.08 / height, ha="left", va="top", fontsize=13, color=INK)
     handles = [Line2D([], [], color=INK, marker="o", linestyle="none", markersize=6),
                Line2D([], [], color=INK, linewidth=2.2), Line2D([], [], color=GUIDE_INK, linewidth=1.0)]
     fig.legend(handles, ["difference", "paired 95% interval (same shots)", "95% interval without pairing"],
-               loc="outside upper right", ncols=1, fontsize=9.5)
+               loc="lower center", bbox_to_anchor=(0.5, 0.04 / height), ncols=3, fontsize=9.5)
     return fig
 
 
