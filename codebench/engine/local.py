@@ -148,6 +148,10 @@ def _worker_lost(tasks: list[BatchTask]) -> WorkerLost:
                       f"batches of {shown}; the finished batches are stored: rerun the same command to resume")
 
 
+#: How long closing waits for the process pool's manager thread to wind down (it takes milliseconds).
+MANAGER_JOIN_SECONDS = 5.0
+
+
 class LocalExecutor(Executor):
     """A pool of ``workers`` local processes (fork server, libraries preloaded)."""
 
@@ -229,10 +233,17 @@ class LocalExecutor(Executor):
         if self._closed:
             return
         self._closed = True
+        manager = getattr(self._pool, "_executor_manager_thread", None)
         if not wait:
             # Interrupted: do not sit out the running batches; their results would be dropped anyway.
             for process in list(getattr(self._pool, "_processes", {}).values()):
                 process.terminate()
         self._pool.shutdown(wait=wait, cancel_futures=True)
+        if manager is not None:
+            # Let the pool's manager thread finish closing its wake-up pipe now: if it is still closing
+            # it when the interpreter exits, Python's own exit hook can write to the half-closed pipe
+            # and print "Exception ignored ... Bad file descriptor" under the interrupted line (seen
+            # once after a Ctrl-C; a race in concurrent.futures of Python 3.11).
+            manager.join(timeout=MANAGER_JOIN_SECONDS)
 
 
